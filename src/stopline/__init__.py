@@ -4,7 +4,24 @@ from __future__ import annotations
 
 from .contract import Option
 from .errors import ConvergenceError, InputError, StoplineError
+from .exercise import METHODS, DirectSweep, ProjectedSOR
 from .market import Market
+from .pricing import PRESETS, ExerciseBoundary, GridSpec, Result, SolveStats, price
 
-__all__ = ["Option", "Market", "StoplineError", "InputError", "ConvergenceError"]
+__all__ = [
+    "Option",
+    "Market",
+    "price",
+    "Result",
+    "ExerciseBoundary",
+    "SolveStats",
+    "GridSpec",
+    "PRESETS",
+    "METHODS",
+    "DirectSweep",
+    "ProjectedSOR",
+    "StoplineError",
+    "InputError",
+    "ConvergenceError",
+]
 __version__ = "0.1.0"

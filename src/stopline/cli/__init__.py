@@ -1,0 +1,30 @@
+"""The ``stopline`` command: thin commands over the library.
+
+Each command lives in its own module and is registered here. Errors raised on purpose
+(:class:`~stopline.errors.StoplineError`) become one line on stderr and a non-zero exit.
+"""
+
+from __future__ import annotations
+
+import typer
+
+from . import demo as _demo
+from . import price as _price
+
+app = typer.Typer(
+    name="stopline",
+    help="American and European options by Crank-Nicolson finite differences, with proof.",
+    no_args_is_help=True,
+    add_completion=False,
+    pretty_exceptions_enable=False,
+)
+app.command("price")(_price.price_cmd)
+app.command("demo")(_demo.demo_cmd)
+
+
+def main() -> None:
+    """Console-script entry point."""
+    app()
+
+
+__all__ = ["app", "main"]

@@ -1,0 +1,132 @@
+"""``stopline price``: one option, its Greeks and how they were computed."""
+
+from __future__ import annotations
+
+import json
+from enum import Enum
+
+import typer
+from rich.console import Console
+from rich.table import Table
+
+from ._common import CAUTION, guard, parse_expiry
+
+__all__ = ["price_cmd", "Kind", "Style", "Accuracy", "Method"]
+
+
+class Kind(str, Enum):
+    put = "put"
+    call = "call"
+
+
+class Style(str, Enum):
+    american = "american"
+    european = "european"
+
+
+class Accuracy(str, Enum):
+    fast = "fast"
+    standard = "standard"
+    fine = "fine"
+
+
+class Method(str, Enum):
+    direct = "direct"
+    psor = "psor"
+
+
+@guard
+def price_cmd(
+    kind: Kind = typer.Option(..., "--kind", help="put or call."),
+    spot: float = typer.Option(..., "--spot", help="Price of the underlying."),
+    strike: float = typer.Option(..., "--strike", help="Strike price."),
+    expiry: str = typer.Option(..., "--expiry", help="Years to expiry, or a date YYYY-MM-DD."),
+    rate: float = typer.Option(..., "--rate", help="Risk-free rate, continuous, decimal."),
+    vol: float = typer.Option(..., "--vol", help="Volatility, annual, decimal (0.25 = 25%)."),
+    style: Style = typer.Option(Style.american, "--style", help="american or european."),
+    div_yield: float = typer.Option(0.0, "--div-yield", help="Dividend yield, continuous."),
+    valuation_date: str = typer.Option(
+        None, "--valuation-date", help="YYYY-MM-DD; needed with a date expiry."
+    ),
+    accuracy: Accuracy = typer.Option(Accuracy.standard, "--accuracy", help="fast, standard or fine."),
+    method: Method = typer.Option(Method.direct, "--method", help="direct (Brennan-Schwartz) or psor."),
+    as_json: bool = typer.Option(False, "--json", help="Print one JSON object instead of a table."),
+) -> None:
+    """Price one American or European option with its Greeks and error estimate."""
+    from .. import Market, Option
+    from ..pricing import price
+
+    option = Option(kind.value, strike, parse_expiry(expiry), style=style.value)
+    market = Market(spot, rate, vol, div_yield=div_yield, valuation_date=valuation_date)
+    res = price(option, market, accuracy=accuracy.value, method=method.value)
+    if as_json:
+        typer.echo(json.dumps(result_record(res), indent=2))
+        return
+    show_result(res)
+
+
+def result_record(res) -> dict:  # noqa: ANN001 - Result, imported lazily
+    """The JSON object ``--json`` prints: the inputs, the answers and how they were obtained."""
+    opt, mkt, st = res.option, res.market, res.stats
+    return {
+        "kind": opt.kind,
+        "style": opt.style,
+        "spot": mkt.spot,
+        "strike": opt.strike,
+        "expiry": opt.expiry if isinstance(opt.expiry, float) else opt.expiry.isoformat(),
+        "time_to_expiry": res.time_to_expiry,
+        "rate": mkt.rate,
+        "div_yield": mkt.div_yield,
+        "vol": mkt.vol,
+        "valuation_date": None if mkt.valuation_date is None else mkt.valuation_date.isoformat(),
+        "price": res.price,
+        "delta": res.delta,
+        "gamma": res.gamma,
+        "theta": res.theta,
+        "error_estimate": res.error_estimate,
+        "accuracy": res.accuracy,
+        "method": st.method,
+        "space_points": st.space_points,
+        "time_levels": st.time_levels,
+        "psor_iterations": st.psor_iterations,
+        "day_count": st.day_count,
+        "warnings": list(st.warnings),
+        "caution": CAUTION,
+    }
+
+
+def show_result(res) -> None:  # noqa: ANN001
+    """Print a result for a person: what was priced, the answer, how it was computed."""
+    console = Console()
+    opt, mkt, st = res.option, res.market, res.stats
+    title = f"{opt.style.capitalize()} {opt.kind}  K={opt.strike:g}  T={res.time_to_expiry:.6g}y"
+    inputs = Table(title=title, show_header=False, box=None, pad_edge=False)
+    inputs.add_column(style="dim")
+    inputs.add_column(justify="right")
+    inputs.add_row("spot", f"{mkt.spot:g}")
+    inputs.add_row("rate", f"{mkt.rate:.4%}")
+    inputs.add_row("dividend yield", f"{mkt.div_yield:.4%}")
+    inputs.add_row("volatility", f"{mkt.vol:.4%}")
+    if mkt.valuation_date is not None:
+        inputs.add_row("valuation date", mkt.valuation_date.isoformat())
+    console.print(inputs)
+    out = Table(show_header=True, header_style="bold", box=None)
+    out.add_column("quantity")
+    out.add_column("value", justify="right")
+    out.add_column("meaning", style="dim")
+    out.add_row("price", f"{res.price:.6f}", f"+/- {res.error_estimate:.1e} (two-grid estimate)")
+    out.add_row("delta", f"{res.delta:.6f}", "dV/dS")
+    out.add_row("gamma", f"{res.gamma:.6f}", "d2V/dS2")
+    out.add_row("theta", f"{res.theta:.6f}", "dV/dt per year of calendar time")
+    console.print(out)
+    grid = (
+        f"grid {st.space_points} x {st.time_levels} (and {st.coarse_space_points} x "
+        f"{st.coarse_time_levels}), {st.method}, accuracy {res.accuracy}, "
+        f"spot range {st.domain[0]:.4g}..{st.domain[1]:.4g}, times {st.day_count}"
+    )
+    if st.psor_iterations:
+        grid += f", {st.psor_iterations} PSOR sweeps"
+    console.print(grid, style="dim")
+    for w in st.warnings:
+        console.print(f"warning: {w}", style="yellow")
+    console.print(CAUTION, style="italic dim")

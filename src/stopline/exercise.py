@@ -1,0 +1,146 @@
+"""Solvers of the early-exercise constraint, offered through one table.
+
+Each time step of an American option is a linear complementarity problem: ``A v >= b``,
+``v >= payoff``, with equality in one of the two at every node. :data:`METHODS` maps a name to
+the solver class; :func:`get_method` accepts a name or an instance.
+
+- ``"direct"``: the Brennan-Schwartz sweep, exact and O(n) when the exercise region is one
+  interval touching the grid end (vanilla puts and calls with non-negative carry settings).
+- ``"psor"``: projected successive over-relaxation, general but iterative; reports sweeps and
+  raises :class:`~stopline.errors.ConvergenceError` at its cap.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from . import _kernels
+from ._types import FloatArray
+from .errors import ConvergenceError, InputError
+from .grid import SpaceGrid
+from .operator import StepPlan
+
+__all__ = ["MarchReport", "DirectSweep", "ProjectedSOR", "METHODS", "get_method"]
+
+
+@dataclass(frozen=True)
+class MarchReport:
+    """What a march through all steps reports besides the values.
+
+    Attributes
+    ----------
+    boundary_x : ndarray, shape (n_steps,)
+        Critical log-moneyness after each step (NaN where there is no exercise region).
+    iterations : int
+        PSOR sweeps over all steps (0 for the direct sweep).
+    max_iterations : int
+        Largest number of sweeps in one step.
+    omega : float
+        Relaxation factor used in the last step (NaN for the direct sweep).
+    """
+
+    boundary_x: FloatArray
+    iterations: int = 0
+    max_iterations: int = 0
+    omega: float = float("nan")
+
+
+@dataclass(frozen=True)
+class DirectSweep:
+    """Brennan-Schwartz direct sweep.
+
+    References
+    ----------
+    Brennan, M. J. and Schwartz, E. S. (1977), The valuation of American put options,
+    Journal of Finance 32(2).
+    """
+
+    name: str = "direct"
+
+    def march(
+        self, v: FloatArray, payoff: FloatArray, space: SpaceGrid, plan: StepPlan,
+        is_put: bool, american: bool,
+    ) -> MarchReport:
+        """Advance ``v`` (in place) through every step of ``plan``."""
+        bnd = np.empty(plan.dt.shape[0])
+        _kernels.march_direct(
+            v, payoff, space.x_min, space.h, plan.dt, plan.theta, plan.lo, plan.di, plan.up,
+            plan.df_r, plan.df_q, is_put, american, bnd,
+        )
+        return MarchReport(bnd)
+
+
+@dataclass(frozen=True)
+class ProjectedSOR:
+    """Projected successive over-relaxation (Cryer 1971).
+
+    Parameters
+    ----------
+    omega : float or None
+        Relaxation factor in (0, 2); ``None`` picks, per step, the optimal factor of the
+        unprojected tridiagonal system.
+    tol : float
+        A step stops when the largest change in one sweep is below ``tol`` (value / strike).
+    max_iter : int
+        Sweep cap per step; reaching it raises :class:`ConvergenceError`.
+    """
+
+    omega: float | None = None
+    tol: float = 1e-12
+    max_iter: int = 20_000
+    name: str = "psor"
+
+    def __post_init__(self) -> None:
+        if self.omega is not None and not 0.0 < self.omega < 2.0:
+            raise InputError("omega", self.omega, "must be in (0, 2)")
+        if not self.tol > 0.0:
+            raise InputError("tol", self.tol, "must be > 0")
+        if self.max_iter < 1:
+            raise InputError("max_iter", self.max_iter, "must be >= 1")
+
+    def march(
+        self, v: FloatArray, payoff: FloatArray, space: SpaceGrid, plan: StepPlan,
+        is_put: bool, american: bool,
+    ) -> MarchReport:
+        """Advance ``v`` (in place) through every step of ``plan``."""
+        n_steps = plan.dt.shape[0]
+        bnd = np.empty(n_steps)
+        iters = np.zeros(n_steps, dtype=np.int64)
+        omega = -1.0 if self.omega is None else float(self.omega)
+        failed = _kernels.march_psor(
+            v, payoff, space.x_min, space.h, plan.dt, plan.theta, plan.lo, plan.di, plan.up,
+            plan.df_r, plan.df_q, is_put, american, bnd, omega, self.tol, self.max_iter, iters,
+        )
+        if failed >= 0:
+            raise ConvergenceError(
+                f"PSOR did not converge: step {failed + 1} of {n_steps} used {self.max_iter} "
+                f"sweeps without the change falling below tol={self.tol:g}; raise max_iter, "
+                "loosen tol, or use method='direct'"
+            )
+        return MarchReport(bnd, int(iters.sum()), int(iters.max(initial=0)), omega)
+
+
+#: Name -> solver class.
+METHODS: dict[str, type[DirectSweep] | type[ProjectedSOR]] = {
+    "direct": DirectSweep,
+    "psor": ProjectedSOR,
+}
+
+ExerciseMethod = DirectSweep | ProjectedSOR
+
+
+def get_method(method: str | ExerciseMethod) -> ExerciseMethod:
+    """Return a solver from its name or pass an instance through.
+
+    Raises
+    ------
+    InputError
+        For an unknown name; the message lists the valid ones.
+    """
+    if isinstance(method, (DirectSweep, ProjectedSOR)):
+        return method
+    if isinstance(method, str) and method.strip().lower() in METHODS:
+        return METHODS[method.strip().lower()]()
+    raise InputError("method", method, f"must be one of {', '.join(METHODS)}")

@@ -1,0 +1,340 @@
+"""``price()``: the one entry point for a price with Greeks, error estimate and boundary."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from ._types import FloatArray
+from ._validate import check_choice
+from .contract import Option
+from .daycount import DEFAULT_DAY_COUNT
+from .errors import InputError
+from .exercise import ExerciseMethod, ProjectedSOR, get_method
+from .greeks import GridReadout, read_at_spot, theta_from_pde
+from .grid import SpaceGrid, TimeGrid, build_space_grid, build_time_grid
+from .market import Market
+from .operator import max_monotone_spacing
+from .solve import GridSolution, PDEProblem, solve
+
+__all__ = [
+    "AccuracyPreset",
+    "PRESETS",
+    "GridSpec",
+    "ExerciseBoundary",
+    "SolveStats",
+    "Result",
+    "price",
+]
+
+
+@dataclass(frozen=True)
+class AccuracyPreset:
+    """Grid resolution behind an accuracy name.
+
+    Attributes
+    ----------
+    name : str
+        Preset name.
+    target : float
+        Intended absolute price error / strike over typical contracts.
+    points_per_sd : float
+        Space nodes per standard deviation of ``ln S`` over the option's life (fine grid).
+    width_sd : float
+        Domain half-width beyond strike, spot and forward, in standard deviations.
+    time_levels : int
+        Graded time intervals of the fine grid.
+    max_spacing : float
+        Largest spacing of the fine grid in ``ln S``: long-dated options have an exercise
+        boundary whose neighbourhood needs resolving on an absolute scale, not only one
+        relative to ``vol sqrt(T)``.
+    """
+
+    name: str
+    target: float
+    points_per_sd: float
+    width_sd: float
+    time_levels: int
+    max_spacing: float = math.inf
+
+
+#: Accuracy presets. Each solves on a grid and on the grid with half the resolution in space
+#: and time, and extrapolates (Richardson); see ``validation/`` for the measured errors.
+PRESETS: dict[str, AccuracyPreset] = {
+    "fast": AccuracyPreset("fast", 1e-4, 8.0, 4.5, 16, 0.08),
+    "standard": AccuracyPreset("standard", 1e-6, 20.0, 5.5, 100, 0.008),
+    "fine": AccuracyPreset("fine", 1e-8, 80.0, 7.0, 400, 0.002),
+}
+
+
+@dataclass(frozen=True)
+class GridSpec:
+    """An expert's grid: total space nodes and graded time intervals of the fine grid.
+
+    The coarse grid of the Richardson pair has about half of each.
+    """
+
+    space_points: int
+    time_levels: int
+
+    def __post_init__(self) -> None:
+        if not isinstance(self.space_points, (int, np.integer)) or self.space_points < 9:
+            raise InputError("grid.space_points", self.space_points, "must be an integer >= 9")
+        if not isinstance(self.time_levels, (int, np.integer)) or self.time_levels < 4:
+            raise InputError("grid.time_levels", self.time_levels, "must be an integer >= 4")
+
+
+@dataclass(frozen=True)
+class ExerciseBoundary:
+    """Critical spot over the option's life.
+
+    Attributes
+    ----------
+    time_to_expiry : ndarray, shape (n_levels,)
+        Time to expiry of each level, increasing, ending at the option's expiry.
+    spot : ndarray, shape (n_levels,)
+        Critical spot at each level: a put is exercised at or below it, a call at or above.
+        NaN where the option has no exercise region (European, or never optimal).
+    """
+
+    time_to_expiry: FloatArray
+    spot: FloatArray
+
+
+@dataclass(frozen=True)
+class SolveStats:
+    """How the answer was computed.
+
+    Attributes
+    ----------
+    space_points, time_levels : int
+        Fine grid: nodes in space, graded time intervals (Rannacher half steps not counted).
+    time_steps : int
+        Steps actually taken on the fine grid (Rannacher half steps counted).
+    coarse_space_points, coarse_time_levels : int
+        The coarse grid of the Richardson pair (0 if none was solved).
+    method : str
+        Exercise solver used.
+    psor_iterations, psor_max_sweeps : int
+        PSOR sweeps over both grids and the most in one step (0 for the direct sweep).
+    domain : tuple of float
+        Lowest and highest spot on the grid.
+    day_count : str
+        Convention for dates.
+    warnings : tuple of str
+        Anything a careful user should know about this solve (empty when all is well).
+    """
+
+    space_points: int
+    time_levels: int
+    time_steps: int
+    coarse_space_points: int
+    coarse_time_levels: int
+    method: str
+    psor_iterations: int
+    psor_max_sweeps: int
+    domain: tuple[float, float]
+    day_count: str = DEFAULT_DAY_COUNT
+    warnings: tuple[str, ...] = field(default_factory=tuple)
+
+
+@dataclass(frozen=True)
+class Result:
+    """A price and what comes with it. Always this type, whatever the options of ``price``.
+
+    Attributes
+    ----------
+    price : float
+        Option value (Richardson-extrapolated from two grids).
+    delta, gamma : float
+        dV/dS and d2V/dS2 read off the grids at the spot (extrapolated likewise).
+    theta : float
+        dV/dt, change in value per year of calendar time (negative when the option loses
+        value as time passes), from the Black-Scholes equation at valuation.
+    error_estimate : float
+        Estimated absolute error of the finer grid's price, ``|V_fine - V_coarse| / 3``; the
+        extrapolated price is usually well inside it.
+    boundary : ExerciseBoundary
+        Critical spot over time (from the finer grid).
+    stats : SolveStats
+        Grid sizes, method, iterations, conventions, warnings.
+    option : Option
+        The contract priced.
+    market : Market
+        The market used.
+    time_to_expiry : float
+        Years from valuation to expiry.
+    accuracy : str
+        Preset name, or ``"custom"`` when a grid was given.
+    """
+
+    price: float
+    delta: float
+    gamma: float
+    theta: float
+    error_estimate: float
+    boundary: ExerciseBoundary
+    stats: SolveStats
+    option: Option
+    market: Market
+    time_to_expiry: float
+    accuracy: str
+
+
+def _resolve_grid(
+    problem: PDEProblem, accuracy: str, grid: GridSpec | tuple[int, int] | None
+) -> tuple[SpaceGrid, TimeGrid, str]:
+    sd = problem.vol * math.sqrt(problem.expiry)
+    drift = (problem.rate - problem.div_yield - 0.5 * problem.vol**2) * problem.expiry
+    h_max = max_monotone_spacing(problem.rate, problem.div_yield, problem.vol)
+    if grid is not None:
+        spec = grid if isinstance(grid, GridSpec) else GridSpec(*grid)
+        preset = PRESETS["standard"]
+        coarse_n = spec.space_points // 2 + 1
+        space = build_space_grid(
+            problem.x_spot, sd, drift, width_sd=preset.width_sd, n_points=coarse_n, h_max=h_max
+        )
+        time = build_time_grid(problem.expiry, max(spec.time_levels // 2, 2))
+        return space, time, "custom"
+    name = check_choice("accuracy", accuracy, tuple(PRESETS))
+    preset = PRESETS[name]
+    space = build_space_grid(
+        problem.x_spot, sd, drift, width_sd=preset.width_sd,
+        points_per_sd=0.5 * preset.points_per_sd, h_max=2.0 * min(h_max, preset.max_spacing),
+    )
+    time = build_time_grid(problem.expiry, preset.time_levels // 2)
+    return space, time, name
+
+
+def _expired(option: Option, market: Market, method: ExerciseMethod, t: float) -> Result:
+    s, k = market.spot, option.strike
+    intrinsic = max(k - s, 0.0) if option.is_put else max(s - k, 0.0)
+    if s == k:
+        delta = -0.5 if option.is_put else 0.5
+    elif intrinsic > 0.0:
+        delta = -1.0 if option.is_put else 1.0
+    else:
+        delta = 0.0
+    empty = np.empty(0)
+    stats = SolveStats(0, 0, 0, 0, 0, method.name, 0, 0, (s, s),
+                       warnings=("expiry is zero: intrinsic value, no grid solved",))
+    return Result(intrinsic, delta, 0.0, 0.0, 0.0, ExerciseBoundary(empty, empty), stats,
+                  option, market, t, "exact")
+
+
+def price(
+    option: Option,
+    market: Market,
+    *,
+    accuracy: str = "standard",
+    method: str | ExerciseMethod = "direct",
+    grid: GridSpec | tuple[int, int] | None = None,
+) -> Result:
+    """Price an option by Crank-Nicolson finite differences, with Greeks and error estimate.
+
+    The equation is solved on two nested grids (the second with half the spacing in space
+    and twice the time levels); the price, delta and gamma are extrapolated from the pair
+    (Richardson), and half their difference estimates the error.
+
+    Parameters
+    ----------
+    option : Option
+        The contract.
+    market : Market
+        Spot, rate, yield, vol and valuation date.
+    accuracy : {"fast", "standard", "fine"}
+        Target absolute error relative to the strike over typical contracts: 1e-4, 1e-6, 1e-8.
+    method : {"direct", "psor"} or a solver instance
+        Solver of the early-exercise constraint (see :mod:`stopline.exercise`).
+    grid : GridSpec or (space_points, time_levels), optional
+        Expert override of the finer grid; ``accuracy`` is then ignored.
+
+    Returns
+    -------
+    Result
+
+    Raises
+    ------
+    InputError
+        For an input outside its domain (the message names the field).
+    ConvergenceError
+        If PSOR reaches its iteration cap.
+
+    References
+    ----------
+    Crank, J. and Nicolson, P. (1947); Rannacher, R. (1984); Richardson, L. F. (1911).
+
+    Examples
+    --------
+    >>> from stopline import Option, Market, price
+    >>> r = price(Option("put", 50.0, 5 / 12), Market(50.0, 0.10, 0.40))
+    >>> round(r.price, 4)
+    4.2842
+    """
+    solver = get_method(method)
+    t = option.time_to_expiry(market.valuation_date)
+    if t == 0.0:
+        return _expired(option, market, solver, t)
+    k = option.strike
+    american = option.is_american
+    warnings: list[str] = []
+    if american and _two_boundaries_possible(option.is_put, market.rate, market.div_yield):
+        if solver.name == "direct":
+            solver = ProjectedSOR()
+            warnings.append(
+                "rate and yield both negative: the exercise region may not touch the grid end, "
+                "so projected SOR was used instead of the direct sweep"
+            )
+    problem = PDEProblem(
+        option.is_put, american, t, market.rate, market.div_yield, market.vol,
+        math.log(market.spot / k),
+    )
+    space_c, time_c, acc_name = _resolve_grid(problem, accuracy, grid)
+    space_f = space_c.refined()
+    time_f = time_c.refined()
+    coarse = solve(problem, space_c, time_c, solver)
+    fine = solve(problem, space_f, time_f, solver)
+    rc = _read(coarse, problem, k)
+    rf = _read(fine, problem, k)
+    value = rf.value + (rf.value - rc.value) / 3.0
+    delta = rf.delta + (rf.delta - rc.delta) / 3.0
+    gamma = rf.gamma + (rf.gamma - rc.gamma) / 3.0
+    if rf.exercised:
+        value, delta, gamma = rf.value, rf.delta, rf.gamma
+    theta = theta_from_pde(
+        market.spot, value, delta, gamma, market.rate, market.div_yield, market.vol, rf.exercised
+    )
+    err = abs(rf.value - rc.value) / 3.0
+    boundary = ExerciseBoundary(fine.time.tau.copy(), k * np.exp(fine.report.boundary_x))
+    stats = SolveStats(
+        space_points=space_f.n,
+        time_levels=time_f.levels,
+        time_steps=int(time_f.dt.shape[0]),
+        coarse_space_points=space_c.n,
+        coarse_time_levels=time_c.levels,
+        method=solver.name,
+        psor_iterations=coarse.report.iterations + fine.report.iterations,
+        psor_max_sweeps=max(coarse.report.max_iterations, fine.report.max_iterations),
+        domain=(k * math.exp(space_f.x_min), k * math.exp(space_f.x_max)),
+        warnings=tuple(warnings),
+    )
+    return Result(value, delta, gamma, theta, err, boundary, stats, option, market, t, acc_name)
+
+
+def _read(sol: GridSolution, problem: PDEProblem, strike: float) -> GridReadout:
+    return read_at_spot(
+        sol.values, sol.payoff, sol.space.x_min, sol.space.h, problem.x_spot, strike,
+        problem.american,
+    )
+
+
+def _two_boundaries_possible(is_put: bool, rate: float, div_yield: float) -> bool:
+    """Whether the exercise region may be an interval away from the grid ends.
+
+    For a put this happens when ``q < r < 0`` (Battauz, De Donno and Sbuelz, 2015), and for a
+    call, by put-call symmetry, when ``r < q < 0``; the direct sweep assumes one interval
+    touching the grid end.
+    """
+    return (div_yield < rate < 0.0) if is_put else (rate < div_yield < 0.0)
