@@ -100,7 +100,7 @@ def locate_boundary(v, payoff, x0, h, is_put):
     return xa - frac * step
 
 
-@njit(cache=True)
+@njit(cache=True, fastmath={"contract"})
 def march_direct(v, payoff, x0, h, dt, theta, lo, di, up, df_r, df_q, is_put, american, bnd):
     """March ``v`` through all steps with the Brennan-Schwartz direct sweep.
 
@@ -130,6 +130,7 @@ def march_direct(v, payoff, x0, h, dt, theta, lo, di, up, df_r, df_q, is_put, am
     n = v.shape[0]
     rhs = np.empty(n)
     w = np.empty(n)
+    aw = np.empty(n)
     s_lo = math.exp(x0)
     s_hi = math.exp(x0 + (n - 1) * h)
     for k in range(dt.shape[0]):
@@ -151,27 +152,53 @@ def march_direct(v, payoff, x0, h, dt, theta, lo, di, up, df_r, df_q, is_put, am
             rhs[n - 2] -= c * vh
             # eliminate the upper diagonal from the top: v_j = (rhs_j - a v_{j-1}) w_j
             w[n - 2] = 1.0 / b
-            for j in range(n - 3, 0, -1):
+            aw[n - 2] = a * w[n - 2]
+            r = rhs[n - 2]
+            rhs[n - 2] = r * w[n - 2]
+            j = n - 3
+            while j > 0:
                 f = c * w[j + 1]
                 w[j] = 1.0 / (b - f * a)
-                rhs[j] -= f * rhs[j + 1]
+                aw[j] = a * w[j]
+                r = rhs[j] - f * r
+                rhs[j] = r * w[j]
+                j -= 1
+                if w[j + 1] == w[j + 2]:
+                    break
+            # the pivots have reached their fixed point: the rest of the sweep is division-free
+            wc = w[j + 1]
+            awc = a * wc
+            f = c * wc
+            for i in range(j, 0, -1):
+                aw[i] = awc
+                r = rhs[i] - f * r
+                rhs[i] = r * wc
             v[0] = vl
             if american:
                 for j in range(1, n - 1):
-                    y = (rhs[j] - a * v[j - 1]) * w[j]
+                    y = rhs[j] - aw[j] * v[j - 1]
                     v[j] = y if y > payoff[j] else payoff[j]
             else:
                 for j in range(1, n - 1):
-                    v[j] = (rhs[j] - a * v[j - 1]) * w[j]
+                    v[j] = rhs[j] - aw[j] * v[j - 1]
             v[n - 1] = vh
         else:
             rhs[1] -= a * vl
             # eliminate the lower diagonal from the bottom: v_j = (rhs_j - c v_{j+1}) w_j
             w[1] = 1.0 / b
-            for j in range(2, n - 1):
+            j = 2
+            while j < n - 1:
                 f = a * w[j - 1]
                 w[j] = 1.0 / (b - f * c)
                 rhs[j] -= f * rhs[j - 1]
+                j += 1
+                if w[j - 1] == w[j - 2]:
+                    break
+            wc = w[j - 1]
+            f = a * wc
+            for i in range(j, n - 1):
+                w[i] = wc
+                rhs[i] -= f * rhs[i - 1]
             v[n - 1] = vh
             if american:
                 for j in range(n - 2, 0, -1):
