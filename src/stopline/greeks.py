@@ -17,6 +17,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
+from . import _kernels
 from ._types import FloatArray
 
 __all__ = ["GridReadout", "read_at_spot", "theta_from_pde"]
@@ -63,12 +64,17 @@ def read_at_spot(
     j = int(math.floor((x_spot - x_min) / h))
     j0 = min(max(j - 1, 0), n - 4)
     t = (x_spot - x_min) / h - j0  # position in units of h from node j0, in [0, 3]
-    v0, v1, v2, v3 = values[j0], values[j0 + 1], values[j0 + 2], values[j0 + 3]
-    if american and all(values[j0 + i] <= payoff[j0 + i] and payoff[j0 + i] > 0 for i in range(4)):
-        s = math.exp(x_spot)
-        intrinsic = max(1.0 - s, 0.0) if payoff[j0] > 0 and payoff[j0] >= payoff[j0 + 3] else max(s - 1.0, 0.0)
-        sign = -1.0 if payoff[j0] >= payoff[j0 + 3] else 1.0
-        return GridReadout(strike * intrinsic, sign, 0.0, True)
+    if american:
+        is_put = bool(payoff[0] > payoff[-1])
+        exercised = [
+            v <= p and p > 0
+            for v, p in zip(values[j0 : j0 + 4].tolist(), payoff[j0 : j0 + 4].tolist(), strict=True)
+        ]
+        if all(exercised) or _beyond_boundary(values, payoff, x_min, h, x_spot, is_put):
+            s = math.exp(x_spot)
+            intrinsic = max(1.0 - s, 0.0) if is_put else max(s - 1.0, 0.0)
+            return GridReadout(strike * intrinsic, -1.0 if is_put else 1.0, 0.0, True)
+    v0, v1, v2, v3 = values[j0 : j0 + 4].tolist()  # plain floats: cheaper arithmetic
     # Lagrange basis on nodes 0, 1, 2, 3 at position t
     a0 = t - 1.0
     a1 = t - 2.0
@@ -93,6 +99,22 @@ def read_at_spot(
     vxx = vtt / (h * h)
     e = math.exp(x_spot)
     return GridReadout(strike * v, vx / e, (vxx - vx) / (strike * e * e), False)
+
+
+def _beyond_boundary(
+    values: FloatArray, payoff: FloatArray, x_min: float, h: float, x_spot: float, is_put: bool
+) -> bool:
+    """Whether the spot lies in the exercise region between its last node and the boundary.
+
+    The value is only C1 across the exercise boundary, so a cubic through nodes on both sides
+    misses the payoff there by O(h^2); the boundary located below the grid spacing (from the
+    quadratic contact of value and payoff, see :func:`stopline._kernels.locate_boundary`)
+    tells whether the spot is exercised.
+    """
+    xb = _kernels.locate_boundary(values, payoff, x_min, h, is_put)
+    if math.isnan(xb):
+        return False
+    return x_spot <= xb if is_put else x_spot >= xb
 
 
 def theta_from_pde(
