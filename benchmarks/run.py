@@ -476,7 +476,7 @@ def render(rep: dict) -> str:
     row("  its steps (~ = extrapolated)", [("~" if P[n]["tree"]["extrapolated"] else "")
                                            + str(P[n]["tree"]["steps"]) for n in PRESET_NAMES])
     row("  tree time / our time", [("~" if P[n]["tree"]["extrapolated"] else "")
-                                   + f"{P[n]['tree']['ratio']:.0f}x" for n in PRESET_NAMES],
+                                   + f"{P[n]['tree']['ratio']:.2g}x" for n in PRESET_NAMES],
         ">= 100x")
     row("psor time / direct time (same answers)", [f"{P[n]['psor_over_direct']:.1f}x"
                                                    for n in PRESET_NAMES])
