@@ -94,3 +94,49 @@ def test_thomas_floors_solve_the_system(rng: np.random.Generator, n: int) -> Non
         out = np.empty(n)
         kernel(rhs, a, b, c, 2, out)
         np.testing.assert_allclose(out, exact, rtol=1e-12, atol=1e-12)
+
+
+def _twin_read(values, payoff, x_min, h, x_spot, american):  # noqa: ANN001, ANN202
+    """Plain-Python cubic read-off (Lagrange on the four nearest nodes), with the exercise test."""
+    n = values.size
+    j = int(math.floor((x_spot - x_min) / h))
+    j0 = min(max(j - 1, 0), n - 4)
+    t = (x_spot - x_min) / h - j0
+    if american:
+        is_put = payoff[0] > payoff[-1]
+        ex = all(values[i] <= payoff[i] and payoff[i] > 0 for i in range(j0, j0 + 4))
+        xb = _kernels.locate_boundary.py_func(values, payoff, x_min, h, is_put)
+        if ex or (not math.isnan(xb) and (x_spot <= xb if is_put else x_spot >= xb)):
+            s = math.exp(x_spot)
+            return (max(1 - s, 0.0), -1.0, 0.0, True) if is_put else (max(s - 1, 0.0), 1.0, 0.0, True)
+    nodes = np.arange(4.0)
+    y = values[j0 : j0 + 4]
+    coef = np.polyfit(nodes, y, 3)
+    v = np.polyval(coef, t)
+    vt = np.polyval(np.polyder(coef), t)
+    vtt = np.polyval(np.polyder(coef, 2), t)
+    return v, vt / h, vtt / (h * h), False
+
+
+@pytest.mark.parametrize("is_put", [True, False])
+def test_read_cubic_matches_its_twin(rng: np.random.Generator, is_put: bool) -> None:
+    vol, t = 0.3, 1.5
+    r, q = (0.06, 0.01) if is_put else (0.02, 0.08)  # both with an exercise region on the grid
+    sd = vol * math.sqrt(t)
+    space = build_space_grid(0.0, sd, (r - q - vol * vol / 2) * t, width_sd=4.0, points_per_sd=20)
+    time = build_time_grid(t, 40)
+    plan = plan_steps(time, space.h, r, q, vol)
+    payoff = payoff_on(space, is_put)
+    v = payoff.copy()
+    bnd = np.empty(time.dt.size)
+    _kernels.march_direct(v, payoff, space.x_min, space.h, plan.dt, plan.theta, plan.lo,
+                          plan.di, plan.up, plan.df_r, plan.df_q, is_put, True, bnd)
+    n_ex = 0
+    for x in rng.uniform(space.x_min + 2 * space.h, space.x_max - 2 * space.h, 200):
+        for american in (True, False):
+            got = _kernels.read_cubic(v, payoff, space.x_min, space.h, x, american)
+            want = _twin_read(v, payoff, space.x_min, space.h, x, american)
+            assert got[3] == want[3]
+            np.testing.assert_allclose(got[:3], want[:3], rtol=1e-9, atol=1e-9)
+            n_ex += got[3]
+    assert n_ex > 0  # the exercise branch was exercised

@@ -28,7 +28,9 @@ __all__ = [
     "march_direct",
     "march_psor",
     "locate_boundary",
+    "read_cubic",
     "thomas_repeat",
+    "thomas_repeat_fixed_point",
 ]
 
 
@@ -373,3 +375,58 @@ def thomas_repeat_fixed_point(rhs0, a, b, c, n_solves, out):
         for i in range(n - 2, -1, -1):
             y = r[i] - c * w[i] * y
             out[i] = y
+
+
+@njit(cache=True)
+def read_cubic(values, payoff, x0, h, x_spot, american):
+    """Value and its x-derivatives at ``x_spot`` from the cubic through the four nearest nodes.
+
+    Returns ``(v, v_x, v_xx, exercised)``. When ``american`` and the spot is in the exercise
+    region (all four nodes exercised, or the spot past the boundary located by
+    :func:`locate_boundary`), returns ``(payoff at the spot, -1 or +1, 0, True)``: the
+    intrinsic value and the money delta of a put or a call.
+    """
+    n = values.shape[0]
+    u = (x_spot - x0) / h
+    j = int(math.floor(u))
+    j0 = min(max(j - 1, 0), n - 4)
+    t = u - j0  # position in units of h from node j0, in [0, 3]
+    if american:
+        is_put = payoff[0] > payoff[n - 1]
+        ex = True
+        for i in range(j0, j0 + 4):
+            if not (values[i] <= payoff[i] and payoff[i] > 0.0):
+                ex = False
+        if not ex:
+            xb = locate_boundary(values, payoff, x0, h, is_put)
+            if not math.isnan(xb):
+                ex = x_spot <= xb if is_put else x_spot >= xb
+        if ex:
+            s = math.exp(x_spot)
+            if is_put:
+                return max(1.0 - s, 0.0), -1.0, 0.0, True
+            return max(s - 1.0, 0.0), 1.0, 0.0, True
+    v0 = values[j0]
+    v1 = values[j0 + 1]
+    v2 = values[j0 + 2]
+    v3 = values[j0 + 3]
+    # Lagrange basis on nodes 0, 1, 2, 3 at position t, and its derivatives in t
+    a0 = t - 1.0
+    a1 = t - 2.0
+    a2 = t - 3.0
+    v = (-a0 * a1 * a2 / 6.0) * v0 + (t * a1 * a2 / 2.0) * v1 + (-t * a0 * a2 / 2.0) * v2 + (
+        t * a0 * a1 / 6.0
+    ) * v3
+    vt = (
+        (-(a1 * a2 + a0 * a2 + a0 * a1) / 6.0) * v0
+        + ((a1 * a2 + t * a2 + t * a1) / 2.0) * v1
+        + (-(a0 * a2 + t * a2 + t * a0) / 2.0) * v2
+        + ((a0 * a1 + t * a1 + t * a0) / 6.0) * v3
+    )
+    vtt = (
+        (-(a0 + a1 + a2) / 3.0) * v0
+        + (a1 + a2 + t) * v1
+        + (-(a0 + a2 + t)) * v2
+        + ((a0 + a1 + t) / 3.0) * v3
+    )
+    return v, vt / h, vtt / (h * h), False

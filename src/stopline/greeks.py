@@ -58,63 +58,17 @@ def read_at_spot(
     strike : float
         Scales the dimensionless values back to money.
     american : bool
-        Whether the exercise region is checked for.
+        Whether the exercise region is checked for: a spot in it (all four nodes exercised,
+        or past the boundary located below the grid spacing, see
+        :func:`stopline._kernels.locate_boundary`) reads the payoff, since the value is only
+        C1 across the boundary and a cubic through nodes on both sides misses it by O(h^2).
     """
-    n = values.shape[0]
-    j = int(math.floor((x_spot - x_min) / h))
-    j0 = min(max(j - 1, 0), n - 4)
-    t = (x_spot - x_min) / h - j0  # position in units of h from node j0, in [0, 3]
-    if american:
-        is_put = bool(payoff[0] > payoff[-1])
-        exercised = [
-            v <= p and p > 0
-            for v, p in zip(values[j0 : j0 + 4].tolist(), payoff[j0 : j0 + 4].tolist(), strict=True)
-        ]
-        if all(exercised) or _beyond_boundary(values, payoff, x_min, h, x_spot, is_put):
-            s = math.exp(x_spot)
-            intrinsic = max(1.0 - s, 0.0) if is_put else max(s - 1.0, 0.0)
-            return GridReadout(strike * intrinsic, -1.0 if is_put else 1.0, 0.0, True)
-    v0, v1, v2, v3 = values[j0 : j0 + 4].tolist()  # plain floats: cheaper arithmetic
-    # Lagrange basis on nodes 0, 1, 2, 3 at position t
-    a0 = t - 1.0
-    a1 = t - 2.0
-    a2 = t - 3.0
-    l0 = -a0 * a1 * a2 / 6.0
-    l1 = t * a1 * a2 / 2.0
-    l2 = -t * a0 * a2 / 2.0
-    l3 = t * a0 * a1 / 6.0
-    v = l0 * v0 + l1 * v1 + l2 * v2 + l3 * v3
-    # derivatives of the basis with respect to t
-    d0 = -(a1 * a2 + a0 * a2 + a0 * a1) / 6.0
-    d1 = (a1 * a2 + t * a2 + t * a1) / 2.0
-    d2 = -(a0 * a2 + t * a2 + t * a0) / 2.0
-    d3 = (a0 * a1 + t * a1 + t * a0) / 6.0
-    vt = d0 * v0 + d1 * v1 + d2 * v2 + d3 * v3
-    s0 = -(a0 + a1 + a2) / 3.0
-    s1 = a1 + a2 + t
-    s2 = -(a0 + a2 + t)
-    s3 = (a0 + a1 + t) / 3.0
-    vtt = s0 * v0 + s1 * v1 + s2 * v2 + s3 * v3
-    vx = vt / h
-    vxx = vtt / (h * h)
+    v, v_x, v_xx, exercised = _kernels.read_cubic(values, payoff, x_min, h, x_spot, american)
+    if exercised:
+        # intrinsic value; v_x carries the money delta (-1 put, +1 call)
+        return GridReadout(strike * v, v_x, 0.0, True)
     e = math.exp(x_spot)
-    return GridReadout(strike * v, vx / e, (vxx - vx) / (strike * e * e), False)
-
-
-def _beyond_boundary(
-    values: FloatArray, payoff: FloatArray, x_min: float, h: float, x_spot: float, is_put: bool
-) -> bool:
-    """Whether the spot lies in the exercise region between its last node and the boundary.
-
-    The value is only C1 across the exercise boundary, so a cubic through nodes on both sides
-    misses the payoff there by O(h^2); the boundary located below the grid spacing (from the
-    quadratic contact of value and payoff, see :func:`stopline._kernels.locate_boundary`)
-    tells whether the spot is exercised.
-    """
-    xb = _kernels.locate_boundary(values, payoff, x_min, h, is_put)
-    if math.isnan(xb):
-        return False
-    return x_spot <= xb if is_put else x_spot >= xb
+    return GridReadout(strike * v, v_x / e, (v_xx - v_x) / (strike * e * e), False)
 
 
 def theta_from_pde(
