@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from .batch import price_many
 from .contract import Option
 from .errors import ConvergenceError, InputError, StoplineError
 from .exercise import METHODS, DirectSweep, ProjectedSOR
@@ -12,6 +13,7 @@ __all__ = [
     "Option",
     "Market",
     "price",
+    "price_many",
     "Result",
     "ExerciseBoundary",
     "SolveStats",

@@ -10,10 +10,8 @@ put back in input order. A row that cannot be priced stops the whole batch with
 
 from __future__ import annotations
 
-import multiprocessing as mp
 import os
 from collections.abc import Sequence
-from concurrent.futures import ProcessPoolExecutor
 
 from ._validate import check_choice
 from .contract import Option
@@ -141,6 +139,10 @@ def price_many(
     n_workers = min(n_workers, max(n, 1))
     if n_workers == 1:
         return _price_rows(0, opts, mkts, accuracy, solver)
+    # imported here: a one-process batch (and ``import stopline``) need not load them
+    import multiprocessing as mp
+    from concurrent.futures import ProcessPoolExecutor
+
     # a few chunks per worker balance uneven rows (long expiries cost more) at small overhead
     n_chunks = min(n, 4 * n_workers)
     bounds = [round(i * n / n_chunks) for i in range(n_chunks + 1)]
