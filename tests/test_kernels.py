@@ -140,3 +140,21 @@ def test_read_cubic_matches_its_twin(rng: np.random.Generator, is_put: bool) -> 
             np.testing.assert_allclose(got[:3], want[:3], rtol=1e-9, atol=1e-9)
             n_ex += got[3]
     assert n_ex > 0  # the exercise branch was exercised
+
+
+def test_zero_floor_substitution_equals_the_projected_one(rng: np.random.Generator) -> None:
+    # both branches: all values positive (no redo) and some negative (redone with the max)
+    for shift in (3.0, -0.5):
+        n = 50
+        rhs = rng.standard_normal(n) + shift
+        aw = rng.uniform(-0.6, -0.1, n)
+        v = np.zeros(n)
+        v[4] = 0.7
+        want = v.copy()
+        y = v[4]
+        for j in range(5, n - 1):
+            y = max(rhs[j] - aw[j] * y, 0.0)
+            want[j] = y
+        _kernels._substitute_floor_zero(v, rhs, aw, 5, n - 1, 1)
+        np.testing.assert_allclose(v, want, rtol=1e-15, atol=1e-15)
+        assert np.all(v[5 : n - 1] >= 0.0)
