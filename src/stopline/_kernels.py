@@ -183,10 +183,23 @@ def march_direct(v, payoff, x0, h, dt, theta, lo, di, up, df_r, df_q, is_put, am
             wc = w[j + 1]
             awc = a * wc
             f = c * wc
-            for i in range(j, 0, -1):
+            # two nodes at a time: r_{i-1} = (rhs_{i-1} - f rhs_i) + f^2 r_{i+1} depends on the
+            # value two nodes back, which halves the serial latency of the recurrence
+            f2 = f * f
+            i = j
+            while i >= 2:
+                g = rhs[i - 1] - f * rhs[i]
+                ri = rhs[i] - f * r
+                r = g + f2 * r
                 aw[i] = awc
-                r = rhs[i] - f * r
-                rhs[i] = r * wc
+                aw[i - 1] = awc
+                rhs[i] = ri * wc
+                rhs[i - 1] = r * wc
+                i -= 2
+            if i == 1:
+                aw[1] = awc
+                r = rhs[1] - f * r
+                rhs[1] = r * wc
             v[0] = vl
             if american:
                 for j in range(1, jz):
@@ -217,7 +230,18 @@ def march_direct(v, payoff, x0, h, dt, theta, lo, di, up, df_r, df_q, is_put, am
             wc = w[j - 1]
             awc = c * wc
             f = a * wc
-            for i in range(j, n - 1):
+            f2 = f * f
+            i = j
+            while i <= n - 3:
+                g = rhs[i + 1] - f * rhs[i]
+                ri = rhs[i] - f * r
+                r = g + f2 * r
+                aw[i] = awc
+                aw[i + 1] = awc
+                rhs[i] = ri * wc
+                rhs[i + 1] = r * wc
+                i += 2
+            if i == n - 2:
                 aw[i] = awc
                 r = rhs[i] - f * r
                 rhs[i] = r * wc
