@@ -142,19 +142,23 @@ def test_read_cubic_matches_its_twin(rng: np.random.Generator, is_put: bool) -> 
     assert n_ex > 0  # the exercise branch was exercised
 
 
-def test_zero_floor_substitution_equals_the_projected_one(rng: np.random.Generator) -> None:
-    # both branches: all values positive (no redo) and some negative (redone with the max)
-    for shift in (3.0, -0.5):
-        n = 50
-        rhs = rng.standard_normal(n) + shift
+@pytest.mark.parametrize("step", [1, -1])
+def test_split_substitution_equals_the_one_line_projection(
+    rng: np.random.Generator, step: int
+) -> None:
+    # payoff binding on an initial run, then not, then again at random: every loop is used
+    n = 60
+    for trial in range(20):
+        rhs = rng.standard_normal(n) + rng.uniform(-1, 2)
         aw = rng.uniform(-0.6, -0.1, n)
+        payoff = np.maximum(rng.standard_normal(n), 0.0) * (trial % 3)
         v = np.zeros(n)
-        v[4] = 0.7
+        start, stop = (1, n - 1) if step == 1 else (n - 2, 0)
+        v[start - step] = 0.3
         want = v.copy()
-        y = v[4]
-        for j in range(5, n - 1):
-            y = max(rhs[j] - aw[j] * y, 0.0)
+        y = want[start - step]
+        for j in range(start, stop, step):
+            y = max(rhs[j] - aw[j] * y, payoff[j])
             want[j] = y
-        _kernels._substitute_floor_zero(v, rhs, aw, 5, n - 1, 1)
-        np.testing.assert_allclose(v, want, rtol=1e-15, atol=1e-15)
-        assert np.all(v[5 : n - 1] >= 0.0)
+        _kernels._substitute_projected(v, rhs, aw, payoff, start, stop, step)
+        np.testing.assert_allclose(v, want, rtol=1e-15, atol=1e-15)  # fused multiply-add: 1 ulp

@@ -135,9 +135,10 @@ def march_direct(v, payoff, x0, h, dt, theta, lo, di, up, df_r, df_q, is_put, am
     the elimination needs no division. The right-hand side is scaled by the pivot during the
     elimination, so the substitution is one fused multiply-add and one ``max`` per node. What
     remains are two serial recurrences per step (elimination, substitution), a few cycles of
-    latency per node each, which is the floor of any tridiagonal direct solve. Where a put's
-    payoff is zero the substitution runs without the ``max`` and is redone with it only if a
-    value came out negative (:func:`_substitute_floor_zero`): same result, shorter chain.
+    latency per node each, which is the floor of any tridiagonal direct solve. The projected
+    substitution is split by region (:func:`_substitute_projected`) so that its chain is one
+    fused multiply-add per node, the ``max`` leaving the critical path; the elimination in the
+    fixed-point region goes two nodes at a time.
     """
     n = v.shape[0]
     rhs = np.empty(n)  # right-hand side, then (after elimination) right-hand side x pivot
@@ -145,8 +146,6 @@ def march_direct(v, payoff, x0, h, dt, theta, lo, di, up, df_r, df_q, is_put, am
     aw = np.empty(n)  # off-diagonal x pivot, the substitution's coefficient
     s_lo = math.exp(x0)
     s_hi = math.exp(x0 + (n - 1) * h)
-    # a put's interior nodes jz .. n - 2 have a zero payoff (out of the money)
-    jz = _zero_payoff_start(payoff) if is_put else 0
     for k in range(dt.shape[0]):
         ae = (1.0 - theta[k]) * dt[k]
         ai = theta[k] * dt[k]
@@ -202,10 +201,7 @@ def march_direct(v, payoff, x0, h, dt, theta, lo, di, up, df_r, df_q, is_put, am
                 rhs[1] = r * wc
             v[0] = vl
             if american:
-                for j in range(1, jz):
-                    y = rhs[j] - aw[j] * v[j - 1]
-                    v[j] = y if y > payoff[j] else payoff[j]
-                _substitute_floor_zero(v, rhs, aw, jz, n - 1, 1)
+                _substitute_projected(v, rhs, aw, payoff, 1, n - 1, 1)
             else:
                 for j in range(1, n - 1):
                     v[j] = rhs[j] - aw[j] * v[j - 1]
@@ -247,10 +243,7 @@ def march_direct(v, payoff, x0, h, dt, theta, lo, di, up, df_r, df_q, is_put, am
                 rhs[i] = r * wc
             v[n - 1] = vh
             if american:
-                # (the put's zero-payoff shortcut measured no gain in this mirrored sweep)
-                for j in range(n - 2, 0, -1):
-                    y = rhs[j] - aw[j] * v[j + 1]
-                    v[j] = y if y > payoff[j] else payoff[j]
+                _substitute_projected(v, rhs, aw, payoff, n - 2, 0, -1)
             else:
                 for j in range(n - 2, 0, -1):
                     v[j] = rhs[j] - aw[j] * v[j + 1]
@@ -261,46 +254,39 @@ def march_direct(v, payoff, x0, h, dt, theta, lo, di, up, df_r, df_q, is_put, am
             bnd[k] = math.nan
 
 
-@njit(cache=True)
-def _zero_payoff_start(payoff):
-    """First index from which a put's payoff is zero up to the top (``n - 1`` if none)."""
-    n = payoff.shape[0]
-    if payoff[n - 1] != 0.0:
-        return n - 1
-    j = n - 1
-    while j > 1 and payoff[j - 1] == 0.0:
-        j -= 1
-    return j
-
-
 @njit(cache=True, fastmath={"contract"})
-def _substitute_floor_zero(v, rhs, aw, start, stop, step):
-    """Substitution ``v_j = max(rhs_j - aw_j v_{j-step}, 0)`` for ``j`` from ``start`` to
-    ``stop`` (exclusive), where the payoff is zero.
+def _substitute_projected(v, rhs, aw, payoff, start, stop, step):
+    """Projected substitution ``v_j = max(rhs_j - aw_j v_{j-step}, payoff_j)``, ``j`` from
+    ``start`` to ``stop`` (exclusive) by ``step``.
 
-    The value is positive there in practice, so the sweep first runs without the ``max``
-    (halving its serial latency) and is redone with it only if a value came out negative:
-    the result is that of the projected sweep in every case.
+    Written as three loops with the same result as the one-line form: through the exercise
+    region the value is the payoff (no serial dependence); then, while the new value exceeds
+    the payoff, the ``max`` is not needed and each node costs one fused multiply-add of
+    latency; at the first node where it would bind, the plain projected loop takes over.
     """
-    count = (stop - start) * step
-    if count <= 0:
-        return
+    j = start
     y = v[start - step]
-    lowest = 0.0
-    for i in range(count):
-        j = start + i * step
+    while j != stop:  # exercise region
         y = rhs[j] - aw[j] * y
-        v[j] = y
-        if y < lowest:
-            lowest = y
-    if lowest < 0.0:
-        y = v[start - step]
-        for i in range(count):
-            j = start + i * step
-            y = rhs[j] - aw[j] * y
-            y = y if y > 0.0 else 0.0
+        if y > payoff[j]:
             v[j] = y
-
+            j += step
+            break
+        y = payoff[j]
+        v[j] = y
+        j += step
+    while j != stop:  # continuation region
+        t = rhs[j] - aw[j] * y
+        if not t > payoff[j]:
+            break
+        y = t
+        v[j] = y
+        j += step
+    while j != stop:  # anywhere the max binds again (not for one boundary)
+        y = rhs[j] - aw[j] * y
+        y = y if y > payoff[j] else payoff[j]
+        v[j] = y
+        j += step
 
 @njit(cache=True)
 def march_psor(
