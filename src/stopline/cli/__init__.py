@@ -10,6 +10,7 @@ import typer
 
 from . import demo as _demo
 from . import price as _price
+from . import validate as _validate
 
 app = typer.Typer(
     name="stopline",
@@ -20,6 +21,7 @@ app = typer.Typer(
 )
 app.command("price")(_price.price_cmd)
 app.command("demo")(_demo.demo_cmd)
+app.command("validate")(_validate.validate_cmd)
 
 
 def main() -> None:
