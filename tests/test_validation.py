@@ -129,3 +129,14 @@ def test_failed_check_is_shown_in_report(run) -> None:
     text = render_html(broken, {})
     assert "checks FAILED: " in text and "deliberately failing" in text
     assert summary(broken)["n_failed"] == len(run.failed) + 1
+
+
+def test_published_tables_are_complete() -> None:
+    # Geske & Johnson (1984) Table I: 3 strikes x 3 vols x 3 expiries; Broadie & Detemple
+    # (1996) Table 1: 5 + 3 calls; HODIE (2018) Table 4: 7 puts (see REFERENCE_VALUES.md).
+    from stopline._published import TABLES
+
+    sizes = {t.key: len(t.cases) for t in TABLES}
+    assert sizes == {"Geske-Johnson 1984": 27, "Hull example": 1, "Kim-Ma-Choe 2013": 5,
+                     "Broadie-Detemple 1996": 8, "HODIE 2018": 7}
+    assert all(t.provenance in ("recalled", "seen") for t in TABLES)

@@ -112,6 +112,7 @@ def figures(run: ValidationRun) -> dict[str, bytes]:
 
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
+    import matplotlib.ticker
 
     out: dict[str, bytes] = {}
     # convergence: prices (absolute error) and gamma (relative error)
@@ -125,6 +126,10 @@ def figures(run: ValidationRun) -> dict[str, bytes]:
             ref = curves[0]
             guide = ref.error[0] * (ref.size[0] / ref.size) ** 2
             ax.loglog(ref.size, guide, ls=":", color="#999999", label="slope 2 guide")
+        ticks = sorted({float(x) for c in curves for x in c.size})
+        ax.set_xticks(ticks)
+        ax.set_xticklabels([f"{x:g}" for x in ticks], fontsize=7)
+        ax.xaxis.set_minor_locator(matplotlib.ticker.NullLocator())
         ax.set_xlabel("grid size (space points per sd, or time levels)")
         ax.set_ylabel("relative gamma error" if want_gamma else "absolute price error")
         ax.set_title("gamma at the strike" if want_gamma else "prices")
@@ -139,10 +144,16 @@ def figures(run: ValidationRun) -> dict[str, bytes]:
     # error map
     em = run.error_map
     fig, ax = plt.subplots(figsize=(7.5, 4.6))
-    logerr = np.log10(np.maximum(em.error, 1e-16))
-    mesh = ax.pcolormesh(em.moneyness, em.expiry, logerr, shading="nearest", cmap="cividis")
-    cb = fig.colorbar(mesh, ax=ax)
-    cb.set_label("log10 |error| / K")
+    # zero error: the spot is in the exercise region, where the value is exact (intrinsic)
+    logerr = np.ma.masked_where(em.error <= 0.0, np.log10(np.where(em.error > 0, em.error, 1.0)))
+    cmap = matplotlib.colormaps["cividis"].with_extremes(bad="#d9d9d9")
+    img = ax.imshow(logerr, origin="lower", aspect="auto", cmap=cmap, interpolation="nearest")
+    cb = fig.colorbar(img, ax=ax)
+    cb.set_label("log10 |error| / K  (grey: exercise region, exact)")
+    ax.set_xticks(range(em.moneyness.size))
+    ax.set_xticklabels([f"{m:.2f}" for m in em.moneyness], fontsize=7, rotation=45)
+    ax.set_yticks(range(em.expiry.size))
+    ax.set_yticklabels([f"{t:g}" for t in em.expiry], fontsize=7)
     ax.set_xlabel("moneyness S / K")
     ax.set_ylabel("expiry (years)")
     ax.set_title(em.title, fontsize=9)
@@ -257,7 +268,8 @@ def render_html(run: ValidationRun, figs: dict[str, bytes] | None = None) -> str
         "tree or approximation, a published table, an exact identity, or the same equation "
         "solved on much finer grids), names the source of that answer, and states the "
         "tolerance it is held to. Published values marked 'recalled' were recalled from the "
-        "publication and re-derived independently; 'seen' values were read in it. The "
+        "publication rather than read in it; 'seen' values were read in it. The published "
+        "table carries an independent Leisen-Reimer tree beside each value. The "
         "Barone-Adesi-Whaley and Bjerksund-Stensland formulas are approximations: they appear "
         "with their own error sizes, not as references.</p>",
     ]
@@ -285,6 +297,7 @@ def _write_atomic(path: Path, text: str) -> None:
     try:
         with os.fdopen(fd, "w", encoding="utf-8") as fh:
             fh.write(text)
+        os.chmod(tmp, 0o644)  # mkstemp creates 0600; a report is for readers
         os.replace(tmp, path)
     except BaseException:
         if os.path.exists(tmp):
