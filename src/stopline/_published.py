@@ -11,8 +11,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-__all__ = ["PublishedTable", "TABLES", "HULL_CRR_STEPS", "BAW_TABLE", "PERPETUAL_PUTS",
-           "RGW_EXAMPLE", "NSTT_BOUNDARY"]
+__all__ = ["PublishedTable", "TABLES", "DOUBTFUL", "HULL_CRR_STEPS", "BAW_TABLE",
+           "PERPETUAL_PUTS", "RGW_EXAMPLE", "NSTT_BOUNDARY"]
 
 
 @dataclass(frozen=True)
@@ -99,6 +99,21 @@ TABLES: tuple[PublishedTable, ...] = (
                (138.4031, 2.13784))),
     ),
 )
+
+#: Recalled entries that converged independent trees contradict, keyed by
+#: ``(table key, spot, strike, expiry, vol)``. They keep their stated tolerance but are
+#: checked against an independent tree instead of the printed value (the reason says why).
+DOUBTFUL: dict[tuple[str, float, float, float, float], str] = {
+    ("Geske-Johnson 1984", 40.0, 40.0, 0.5833, 0.4):
+        "recalled 4.3526 lies 1.1e-4 below the converged 4.35271, on which Leisen-Reimer and "
+        "CRR-BS trees at thousands of steps agree to 2e-6",
+    ("Geske-Johnson 1984", 40.0, 45.0, 0.3333, 0.4):
+        "recalled 6.5099 lies 1.0e-4 above the converged 6.50980, at the edge of the stated "
+        "tolerance",
+    ("Broadie-Detemple 1996", 90.0, 100.0, 0.5, 0.4):
+        "recalled 5.7223 lies 2.3e-4 above the converged 5.72207, on which Leisen-Reimer and "
+        "CRR-BS trees at thousands of steps agree to 2e-6",
+}
 
 #: Hull's CRR tree for the example put (S = K = 50, r = 0.10, vol 0.40, T = 5/12): steps and
 #: the printed value, exact to the printed digits (recalled).
