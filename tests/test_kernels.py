@@ -14,6 +14,12 @@ from stopline.operator import plan_steps
 from stopline.solve import payoff_on
 
 
+def _twin_far(s, df_r, df_q, is_put, american):
+    fwd = (df_r - s * df_q) if is_put else (s * df_q - df_r)
+    intrinsic = max((1 - s) if is_put else (s - 1), 0.0)
+    return max(fwd, 0.0, intrinsic if american else 0.0)
+
+
 def _twin_march(v, payoff, x0, h, plan, is_put, american):
     """Theta steps solved with scipy's banded solver; American by projected iteration."""
     v = v.copy()
@@ -22,14 +28,7 @@ def _twin_march(v, payoff, x0, h, plan, is_put, american):
     for k in range(plan.dt.size):
         ae, ai = (1 - plan.theta[k]) * plan.dt[k], plan.theta[k] * plan.dt[k]
         lo, di, up = plan.lo[k], plan.di[k], plan.up[k]
-        if is_put:
-            vl = max(plan.df_r[k] - s_lo * plan.df_q[k], 0.0)
-            vl = max(vl, 1 - s_lo) if american else vl
-            vh = 0.0
-        else:
-            vh = max(s_hi * plan.df_q[k] - plan.df_r[k], 0.0)
-            vh = max(vh, s_hi - 1) if american else vh
-            vl = 0.0
+        vl, vh = (_twin_far(s, plan.df_r[k], plan.df_q[k], is_put, american) for s in (s_lo, s_hi))
         rhs = v[1:-1] + ae * (lo * v[:-2] + di * v[1:-1] + up * v[2:])
         rhs[0] += ai * lo * vl
         rhs[-1] += ai * up * vh

@@ -24,6 +24,7 @@ import numpy as np
 from numba import njit
 
 __all__ = [
+    "far_value",
     "far_values",
     "march_direct",
     "march_psor",
@@ -33,26 +34,33 @@ __all__ = [
 
 
 @njit(cache=True)
-def far_values(s_lo, s_hi, df_r, df_q, is_put, american):
-    """Dirichlet values at the low and high ends of the grid at one level.
+def far_value(s, df_r, df_q, is_put, american):
+    """Dirichlet value at a grid end at spot ``s`` (in units of the strike).
 
-    The European asymptote is the discounted forward payoff (the option is certain to end in
-    the money at one end and worthless at the other); an American option is floored by its
-    intrinsic value.
+    Far from the strike the option is certain to end in or out of the money, so its value is
+    the discounted forward payoff, floored at zero; an American option is also floored by its
+    intrinsic value. The same rule serves both ends and grids that do not reach the strike.
     """
     if is_put:
-        lo = df_r - s_lo * df_q
-        if lo < 0.0:
-            lo = 0.0
-        if american and 1.0 - s_lo > lo:
-            lo = 1.0 - s_lo
-        return lo, 0.0
-    hi = s_hi * df_q - df_r
-    if hi < 0.0:
-        hi = 0.0
-    if american and s_hi - 1.0 > hi:
-        hi = s_hi - 1.0
-    return 0.0, hi
+        v = df_r - s * df_q
+        e = 1.0 - s
+    else:
+        v = s * df_q - df_r
+        e = s - 1.0
+    if v < 0.0:
+        v = 0.0
+    if american and e > v:
+        v = e
+    return v
+
+
+@njit(cache=True)
+def far_values(s_lo, s_hi, df_r, df_q, is_put, american):
+    """Dirichlet values at the low and high ends of the grid at one level."""
+    return (
+        far_value(s_lo, df_r, df_q, is_put, american),
+        far_value(s_hi, df_r, df_q, is_put, american),
+    )
 
 
 @njit(cache=True)

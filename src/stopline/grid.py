@@ -36,7 +36,9 @@ class SpaceGrid:
     n : int
         Number of nodes, boundary nodes included.
     strike_index : int
-        Index of the node at ``x = 0`` (the strike).
+        Index of the node at ``x = 0`` (the strike), or -1 when the strike lies more than
+        ``width_sd`` standard deviations from both the spot and the forward: then the payoff is
+        smooth on the whole domain and no node is spent between the spot and the strike.
     """
 
     x_min: float
@@ -54,9 +56,15 @@ class SpaceGrid:
         """Last node."""
         return self.x_min + (self.n - 1) * self.h
 
+    @property
+    def has_strike(self) -> bool:
+        """Whether the strike is a node (False when it lies beyond the domain's reach)."""
+        return self.strike_index >= 0
+
     def refined(self) -> SpaceGrid:
         """The grid with half the spacing on the same domain (every old node kept)."""
-        return SpaceGrid(self.x_min, 0.5 * self.h, 2 * self.n - 1, 2 * self.strike_index)
+        k = 2 * self.strike_index if self.has_strike else -1
+        return SpaceGrid(self.x_min, 0.5 * self.h, 2 * self.n - 1, k)
 
 
 @dataclass(frozen=True)
@@ -99,6 +107,7 @@ def build_space_grid(
     points_per_sd: float | None = None,
     n_points: int | None = None,
     h_max: float = math.inf,
+    n_max: int | None = None,
 ) -> SpaceGrid:
     """Build a uniform log-moneyness grid with the strike on a node and the spot inside.
 
@@ -116,10 +125,17 @@ def build_space_grid(
         Resolution: nodes per standard deviation, or (expert) the total number of nodes.
         Exactly one must be given.
     h_max : float
-        Largest spacing allowed (e.g. to keep central differences monotone at low vol).
+        Largest spacing wanted (e.g. to keep central differences monotone at low vol).
+    n_max : int, optional
+        Most nodes allowed; overrides ``h_max`` when both cannot hold.
     """
-    lo = min(0.0, x_spot, x_spot + drift) - width_sd * sd
-    hi = max(0.0, x_spot, x_spot + drift) + width_sd * sd
+    lo = min(x_spot, x_spot + drift) - width_sd * sd
+    hi = max(x_spot, x_spot + drift) + width_sd * sd
+    # the strike is left out only when it lies two standard deviations beyond the domain
+    # itself: what the option is worth there is then below ~phi(width_sd + 2) of the strike
+    reach = lo - 2.0 * sd <= 0.0 <= hi + 2.0 * sd
+    if reach:
+        lo, hi = min(lo, -width_sd * sd), max(hi, width_sd * sd)
     if (points_per_sd is None) == (n_points is None):
         raise ValueError("give exactly one of points_per_sd and n_points")
     if n_points is not None:
@@ -127,11 +143,13 @@ def build_space_grid(
     else:
         h = sd / points_per_sd
     h = min(h, h_max)
+    if n_max is not None and (hi - lo) / h + 2 > n_max:
+        h = (hi - lo) / (n_max - 2)
+    if not reach:
+        n = n_points if n_points is not None else math.ceil((hi - lo) / h) + 1
+        return SpaceGrid(lo, h, n, -1)
     j_lo = math.ceil(-lo / h)
-    if n_points is not None:
-        n = n_points
-    else:
-        n = j_lo + math.ceil(hi / h) + 1
+    n = n_points if n_points is not None else j_lo + math.ceil(hi / h) + 1
     return SpaceGrid(-j_lo * h, h, n, j_lo)
 
 

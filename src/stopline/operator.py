@@ -22,7 +22,7 @@ import numpy as np
 from ._types import FloatArray
 from .grid import TimeGrid
 
-__all__ = ["StepPlan", "plan_steps", "max_monotone_spacing"]
+__all__ = ["StepPlan", "plan_steps", "coefficients", "max_monotone_spacing"]
 
 
 @dataclass(frozen=True)
@@ -61,21 +61,37 @@ def plan_steps(time: TimeGrid, h: float, rate: float, div_yield: float, vol: flo
     rate, div_yield, vol : float
         Continuously compounded rate and yield, annual volatility.
     """
-    s2 = vol * vol
-    mu = rate - div_yield - 0.5 * s2
-    alpha = 0.5 * s2 / (h * h)
-    beta = 0.5 * mu / h
+    lo, di, up = coefficients(h, rate, div_yield, vol)
     ones = np.ones_like(time.dt)
     return StepPlan(
         tau=time.tau,
         dt=time.dt,
         theta=time.theta,
-        lo=(alpha - beta) * ones,
-        di=(-2.0 * alpha - rate) * ones,
-        up=(alpha + beta) * ones,
+        lo=lo * ones,
+        di=di * ones,
+        up=up * ones,
         df_r=np.exp(-rate * time.tau),
         df_q=np.exp(-div_yield * time.tau),
     )
+
+
+def coefficients(h: float, rate: float, div_yield: float, vol: float) -> tuple[float, float, float]:
+    """``(lo, di, up)`` of the operator on spacing ``h``.
+
+    Central differences (second order) when ``|mu| h <= s^2``; otherwise the drift term is
+    differenced upwind (first order but monotone: no negative off-diagonal, so no spurious
+    oscillation or negative price at very low volatility). Only grids that the node cap
+    stopped from resolving ``s^2 / |mu|`` reach the upwind branch, and ``price`` says so.
+    """
+    s2 = vol * vol
+    mu = rate - div_yield - 0.5 * s2
+    alpha = 0.5 * s2 / (h * h)
+    if abs(mu) * h <= s2:
+        beta = 0.5 * mu / h
+        return alpha - beta, -2.0 * alpha - rate, alpha + beta
+    if mu > 0.0:
+        return alpha, -2.0 * alpha - mu / h - rate, alpha + mu / h
+    return alpha - mu / h, -2.0 * alpha + mu / h - rate, alpha
 
 
 def max_monotone_spacing(rate: float, div_yield: float, vol: float) -> float:

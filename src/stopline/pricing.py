@@ -69,6 +69,15 @@ PRESETS: dict[str, AccuracyPreset] = {
 }
 
 
+#: Most nodes of the coarse grid of a preset (the fine grid has about twice as many). Reached
+#: only at very low volatility with a large drift, where central differences would need a
+#: spacing below ``vol^2 / |r - q - vol^2/2|``; ``price`` then warns.
+MAX_COARSE_NODES = 10_000
+#: Below this ``vol * sqrt(T)`` the zero-volatility limit is used (its error is below about
+#: ``0.4 * vol * sqrt(T)`` of the spot, i.e. under 1e-6 of the strike near the money).
+MIN_SD_FOR_GRID = 2e-6
+
+
 @dataclass(frozen=True)
 class GridSpec:
     """An expert's grid: total space nodes and graded time intervals of the fine grid.
@@ -202,7 +211,8 @@ def _resolve_grid(
     preset = PRESETS[name]
     space = build_space_grid(
         problem.x_spot, sd, drift, width_sd=preset.width_sd,
-        points_per_sd=0.5 * preset.points_per_sd, h_max=2.0 * min(h_max, preset.max_spacing),
+        points_per_sd=0.5 * preset.points_per_sd, h_max=min(h_max, 2.0 * preset.max_spacing),
+        n_max=MAX_COARSE_NODES,
     )
     time = build_time_grid(problem.expiry, preset.time_levels // 2)
     return space, time, name
@@ -222,6 +232,41 @@ def _expired(option: Option, market: Market, method: ExerciseMethod, t: float) -
                        warnings=("expiry is zero: intrinsic value, no grid solved",))
     return Result(intrinsic, delta, 0.0, 0.0, 0.0, ExerciseBoundary(empty, empty), stats,
                   option, market, t, "exact")
+
+
+def _zero_vol_limit(option: Option, market: Market, method: ExerciseMethod, t: float) -> Result:
+    """Deterministic spot ``S e^{(r-q)u}``: the best of exercising at any ``u`` in [0, T].
+
+    Exercise at ``u`` is worth ``e^{-ru} payoff(S e^{(r-q)u})``; for a put this is
+    ``K e^{-ru} - S e^{-qu}``, smooth with at most one stationary point
+    ``u* = ln(qS / (rK)) / (q - r)``, so the maximum is at 0, T or u*. A European option
+    takes ``u = T`` only.
+    """
+    s, k, r, q = market.spot, option.strike, market.rate, market.div_yield
+    sign = 1.0 if option.is_put else -1.0
+
+    def worth(u: float) -> float:
+        return sign * (k * math.exp(-r * u) - s * math.exp(-q * u))
+
+    candidates = [t]
+    if option.is_american:
+        candidates.append(0.0)
+        if q != r and r * q > 0.0 and q * s / (r * k) > 0.0:
+            u = math.log(q * s / (r * k)) / (q - r)
+            if 0.0 < u < t:
+                candidates.append(u)
+    best_u = max(candidates, key=worth)
+    value = max(worth(best_u), 0.0)
+    delta = -sign * math.exp(-q * best_u) if value > 0.0 else 0.0
+    exercised = value > 0.0 and best_u == 0.0
+    theta = theta_from_pde(s, value, delta, 0.0, r, q, market.vol, exercised)
+    empty = np.empty(0)
+    stats = SolveStats(0, 0, 0, 0, 0, method.name, 0, 0, (s, s), warnings=(
+        f"vol * sqrt(T) = {market.vol * math.sqrt(t):.2g} is below {MIN_SD_FOR_GRID:g}: priced by "
+        "the zero-volatility limit (best deterministic exercise time), no grid solved",
+    ))
+    return Result(value, delta, 0.0, theta, 0.4 * market.vol * math.sqrt(t) * s, ExerciseBoundary(empty, empty),
+                  stats, option, market, t, "exact")
 
 
 def price(
@@ -287,11 +332,18 @@ def price(
                 "rate and yield both negative: the exercise region may not touch the grid end, "
                 "so projected SOR was used instead of the direct sweep"
             )
+    if market.vol * math.sqrt(t) < MIN_SD_FOR_GRID:
+        return _zero_vol_limit(option, market, solver, t)
     problem = PDEProblem(
         option.is_put, american, t, market.rate, market.div_yield, market.vol,
         math.log(market.spot / k),
     )
     space_c, time_c, acc_name = _resolve_grid(problem, accuracy, grid)
+    if abs(problem.rate - problem.div_yield - 0.5 * problem.vol**2) * space_c.h > problem.vol**2:
+        warnings.append(
+            "very low volatility for the drift: the node cap was reached and the drift term is "
+            "differenced upwind (first order); accuracy is below the preset's target"
+        )
     space_f = space_c.refined()
     time_f = time_c.refined()
     coarse = solve(problem, space_c, time_c, solver)
@@ -303,6 +355,12 @@ def price(
     gamma = rf.gamma + (rf.gamma - rc.gamma) / 3.0
     if rf.exercised:
         value, delta, gamma = rf.value, rf.delta, rf.gamma
+    # extrapolation may step below a bound the true price obeys; the bound is then closer
+    floor = max(k - market.spot, 0.0) if option.is_put else max(market.spot - k, 0.0)
+    value = max(value, floor if american else 0.0)
+    # likewise delta: within [-1, 0] for a put and [0, 1] for a call (e^{-qT} when q < 0)
+    dmax = max(1.0, math.exp(-market.div_yield * t))
+    delta = min(max(delta, -dmax), 0.0) if option.is_put else min(max(delta, 0.0), dmax)
     theta = theta_from_pde(
         market.spot, value, delta, gamma, market.rate, market.div_yield, market.vol, rf.exercised
     )

@@ -67,7 +67,8 @@ def payoff_on(space: SpaceGrid, is_put: bool) -> FloatArray:
     s = np.exp(space.x)
     out = 1.0 - s if is_put else s - 1.0
     np.maximum(out, 0.0, out=out)
-    out[space.strike_index] = 0.0
+    if space.has_strike:
+        out[space.strike_index] = 0.0
     return out
 
 
