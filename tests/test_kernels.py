@@ -20,12 +20,14 @@ def _twin_far(s, df_r, df_q, is_put, american):
     return max(fwd, 0.0, intrinsic if american else 0.0)
 
 
-def _twin_march(v, payoff, x0, h, plan, is_put, american):
+def _twin_march(v, x0, h, plan, is_put, american):
     """Theta steps solved with scipy's banded solver; American by projected iteration."""
     v = v.copy()
     n = v.size
-    s_lo, s_hi = math.exp(x0), math.exp(x0 + (n - 1) * h)
     for k in range(plan.dt.size):
+        s_nodes = np.exp(x0 + h * np.arange(n)) * plan.shift[k]
+        payoff = np.maximum((1 - s_nodes) if is_put else (s_nodes - 1), 0.0)
+        s_lo, s_hi = s_nodes[0], s_nodes[-1]
         ae, ai = (1 - plan.theta[k]) * plan.dt[k], plan.theta[k] * plan.dt[k]
         lo, di, up = plan.lo[k], plan.di[k], plan.up[k]
         vl, vh = (_twin_far(s, plan.df_r[k], plan.df_q[k], is_put, american) for s in (s_lo, s_hi))
@@ -76,9 +78,9 @@ def test_march_direct_matches_numpy_twin(small_case, is_put: bool, american: boo
     payoff = payoff_on(space, is_put)
     v = payoff.copy()
     bnd = np.empty(plan.dt.size)
-    _kernels.march_direct(v, payoff, space.x_min, space.h, plan.dt, plan.theta, plan.lo, plan.di,
-                          plan.up, plan.df_r, plan.df_q, is_put, american, bnd)
-    twin = _twin_march(payoff.copy(), payoff, space.x_min, space.h, plan, is_put, american)
+    _kernels.march_direct(v, np.exp(space.x), space.x_min, space.h, plan.dt, plan.theta, plan.lo,
+                          plan.di, plan.up, plan.df_r, plan.df_q, plan.shift, is_put, american, bnd)
+    twin = _twin_march(payoff, space.x_min, space.h, plan, is_put, american)
     np.testing.assert_allclose(v, twin, rtol=0, atol=1e-12)
 
 
@@ -90,11 +92,11 @@ def test_march_psor_matches_direct_kernel_and_twin(small_case, is_put: bool) -> 
     v = payoff.copy()
     bnd = np.empty(plan.dt.size)
     iters = np.zeros(plan.dt.size, dtype=np.int64)
-    failed = _kernels.march_psor(v, payoff, space.x_min, space.h, plan.dt, plan.theta, plan.lo,
-                                 plan.di, plan.up, plan.df_r, plan.df_q, is_put, True, bnd,
-                                 -1.0, 1e-14, 100000, iters)
+    failed = _kernels.march_psor(v, np.exp(space.x), space.x_min, space.h, plan.dt, plan.theta,
+                                 plan.lo, plan.di, plan.up, plan.df_r, plan.df_q, plan.shift,
+                                 is_put, True, bnd, -1.0, 1e-14, 100000, iters)
     assert failed == -1 and iters.min() >= 1
-    twin = _twin_march(payoff.copy(), payoff, space.x_min, space.h, plan, is_put, True)
+    twin = _twin_march(payoff, space.x_min, space.h, plan, is_put, True)
     np.testing.assert_allclose(v, twin, rtol=0, atol=1e-11)
 
 
