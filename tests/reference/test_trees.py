@@ -497,6 +497,8 @@ def test_dividend_tree_input_errors() -> None:
         tree_price_cash_dividends(*args, [(0.5,)], 100)
     with pytest.raises(InputError, match="crr, bbsr"):
         tree_price_cash_dividends(*args, [(0.5, 1.0)], 100, method="trinomial")
+    with pytest.raises(InputError, match="too few to interpolate"):
+        tree_price_cash_dividends(*args[:4], 50.0, 0.05, 0.0, 0.8, [(0.5, 1.0)], 100)
     with pytest.raises(InputError, match="present value"):
         tree_price_escrowed(*args, [(0.5, 60.0), (0.6, 60.0)], 100)
 
@@ -507,14 +509,21 @@ def test_dividend_tree_input_errors() -> None:
 
 
 def test_interpolation_is_exact_for_quintics() -> None:
-    # Common practice: six-point Lagrange interpolation reproduces polynomials of degree 5.
+    # Common practice: six-point Lagrange interpolation reproduces polynomials of degree 5
+    # (in spot) between the nodes; linear in spot below the lowest node.
     x0, h = math.log(50.0), 0.03
-    nodes = x0 + h * np.arange(40)
+    spots = np.exp(x0 + h * np.arange(40))
     coeffs = [0.3, -1.2, 0.7, 2.0, -0.5, 0.1]
-    values = np.polyval(coeffs, nodes - 4.0)
-    for s in np.exp(np.linspace(nodes[0], nodes[-1], 57)):
-        expected = np.polyval(coeffs, math.log(s) - 4.0)
-        assert interp_layer(x0, h, values, 0.0, float(s)) == pytest.approx(expected, abs=1e-11)
+    values = np.polyval(coeffs, spots / 50.0)
+    for s in np.exp(np.linspace(x0, x0 + 39 * h, 57)):
+        expected = np.polyval(coeffs, s / 50.0)
+        assert interp_layer(x0, h, values, 0.0, float(s)) == pytest.approx(
+            expected, rel=1e-12, abs=1e-12
+        )
+    assert interp_layer(x0, h, values, 7.0, 20.0) == pytest.approx(
+        7.0 + (values[0] - 7.0) * 0.4, rel=1e-14
+    )
+    assert interp_layer(x0, h, values, 7.0, -1.0) == 7.0
 
 
 def test_smoothed_step_matches_quadrature() -> None:
