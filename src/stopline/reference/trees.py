@@ -10,9 +10,9 @@ Plain trees (continuous dividend yield only):
   ``2n + 1`` steps.
 
 Accuracy on American options (work grows as steps squared): :func:`lr_extrapolated_price`
-reaches about 1e-6 relative with 1,000 steps and a few 1e-7 with 2,000;
-:func:`bbsr_price` a few 1e-6 with 4,000 (its residual error depends on where the strike
-falls between nodes, so it does not fall smoothly with the step count).
+reaches about 1e-6 relative with 1,000 to 2,000 steps; :func:`bbsr_price` a few 1e-6 with
+4,000 (its residual error depends on where the strike falls between nodes, so it does not
+fall smoothly with the step count).
 
 Discrete cash dividends, given as ``(time in years, amount)`` pairs:
 
