@@ -146,18 +146,22 @@ GESKE_JOHNSON = {
 }
 
 
-# One entry sits outside the stated +-1e-4: our converged value is 4.35271 (LR and BBSR
-# trees agree to 2e-6; T = 7/12 would give 4.35282), 1.1e-4 above the recalled 4.3526.
-# Reported to the lead; checked here at +-2e-4.
-GESKE_JOHNSON_TOL = {(40, 0.4, 0.5833): 2e-4}
+def _geske_johnson_cases():
+    for (strike, vol), row in GESKE_JOHNSON.items():
+        for t, published in zip((0.0833, 0.3333, 0.5833), row, strict=True):
+            marks = []
+            if (strike, vol, t) == (40, 0.4, 0.5833):
+                # Our converged value is 4.35271 (LR and BBSR trees agree to 2e-6; T = 7/12
+                # gives 4.35282), 1.1e-4 above the recalled 4.3526, which looks one unit low in
+                # its last digit. Kept strict so a fix of the table shows.
+                marks = [pytest.mark.xfail(strict=True, reason="recalled entry 1.1e-4 off")]
+            yield pytest.param(strike, vol, t, published, marks=marks)
 
 
-@pytest.mark.parametrize("strike, vol", list(GESKE_JOHNSON))
-def test_geske_johnson_table(strike: int, vol: float) -> None:
-    for t, published in zip((0.0833, 0.3333, 0.5833), GESKE_JOHNSON[(strike, vol)], strict=True):
-        value = lr_extrapolated_price("put", "american", 40.0, strike, t, 0.0488, 0.0, vol, 801)
-        tol = GESKE_JOHNSON_TOL.get((strike, vol, t), 1e-4)
-        assert value == pytest.approx(published, abs=tol)
+@pytest.mark.parametrize("strike, vol, t, published", _geske_johnson_cases())
+def test_geske_johnson_table(strike: int, vol: float, t: float, published: float) -> None:
+    value = lr_extrapolated_price("put", "american", 40.0, strike, t, 0.0488, 0.0, vol, 801)
+    assert value == pytest.approx(published, abs=1e-4)
 
 
 def test_kim_ma_choe_table() -> None:
@@ -191,18 +195,25 @@ def test_longstaff_schwartz_continuous_values() -> None:
         ) == pytest.approx(value, abs=1e-4)
 
 
-def test_broadie_detemple_calls() -> None:
+def _broadie_detemple_cases():
     # Broadie & Detemple (1996), RFS 9(4), Table 1 (recalled, +-2e-4): K = 100, r = 0.03,
     # q = 0.07, T = 0.5.
     rows = [(0.2, (80, 90, 100, 110, 120), (0.2194, 1.3864, 4.7825, 11.0978, 20.0005)),
             (0.4, (80, 90, 100), (2.6889, 5.7223, 10.2385))]  # fmt: skip
-    # vol 0.4, S = 90: our converged value is 5.72207 (LR and BBSR agree to 2e-6), 2.3e-4
-    # below the recalled 5.7223; reported to the lead and checked here at +-3e-4.
-    wider = {(0.4, 90): 3e-4}
     for vol, spots, published in rows:
         for s, p in zip(spots, published, strict=True):
-            value = lr_extrapolated_price("call", "american", s, 100.0, 0.5, 0.03, 0.07, vol, 1001)
-            assert value == pytest.approx(p, abs=wider.get((vol, s), 2e-4))
+            marks = []
+            if (vol, s) == (0.4, 90):
+                # Our converged value is 5.72207 (LR and BBSR trees agree to 2e-6), 2.3e-4
+                # below the recalled 5.7223. Kept strict so a fix of the table shows.
+                marks = [pytest.mark.xfail(strict=True, reason="recalled entry 2.3e-4 off")]
+            yield pytest.param(vol, s, p, marks=marks)
+
+
+@pytest.mark.parametrize("vol, spot, published", _broadie_detemple_cases())
+def test_broadie_detemple_calls(vol: float, spot: float, published: float) -> None:
+    value = lr_extrapolated_price("call", "american", spot, 100.0, 0.5, 0.03, 0.07, vol, 1001)
+    assert value == pytest.approx(published, abs=2e-4)
 
 
 # --------------------------------------------------------------------------------------
@@ -364,23 +375,21 @@ def test_spot_model_against_quadrature(case: tuple) -> None:
     assert value == pytest.approx(exact, rel=1e-6)
 
 
-def test_spot_model_second_order() -> None:
+@pytest.mark.parametrize("case", [SPOT_CASES[0], SPOT_CASES[3], SPOT_CASES[4]])
+def test_spot_model_second_order(case: tuple) -> None:
     # Vellekoop & Nieuwenhuis (2006) lattice with smoothed steps and Richardson
-    # extrapolation: errors fall ~4x per doubling; fitted order in [1.7, 2.3].
-    case = ("call", True, 80.0, 82.0, 1 / 3, 0.06, 0.0, 0.3, 0.25, 4.0)
+    # extrapolation: errors against the quadrature fall ~4x per doubling; fitted order in
+    # the house band [1.8, 2.2].
+    kind, american_call, s, k, t, r, q, v, td, d = case
     exact = _spot_model_quadrature(*case)
+    style = "american" if american_call else "european"
     steps = np.array([250, 500, 1000, 2000])
     errors = [
-        abs(
-            tree_price_cash_dividends(
-                "call", "american", 80.0, 82.0, 1 / 3, 0.06, 0.0, 0.3, [(0.25, 4.0)], int(n)
-            )
-            - exact
-        )
+        abs(tree_price_cash_dividends(kind, style, s, k, t, r, q, v, [(td, d)], int(n)) - exact)
         for n in steps
     ]
     slope = -np.polyfit(np.log(steps), np.log(errors), 1)[0]
-    assert 1.7 < slope < 2.3
+    assert 1.8 < slope < 2.2
 
 
 @pytest.mark.parametrize("method", DIVIDEND_TREE_METHODS)
@@ -497,6 +506,8 @@ def test_dividend_tree_input_errors() -> None:
         tree_price_cash_dividends(*args, [(0.5,)], 100)
     with pytest.raises(InputError, match="crr, bbsr"):
         tree_price_cash_dividends(*args, [(0.5, 1.0)], 100, method="trinomial")
+    with pytest.raises(InputError, match="too few to interpolate"):
+        tree_price_cash_dividends(*args[:4], 50.0, 0.05, 0.0, 0.8, [(0.5, 1.0)], 100)
     with pytest.raises(InputError, match="present value"):
         tree_price_escrowed(*args, [(0.5, 60.0), (0.6, 60.0)], 100)
 
@@ -507,14 +518,21 @@ def test_dividend_tree_input_errors() -> None:
 
 
 def test_interpolation_is_exact_for_quintics() -> None:
-    # Common practice: six-point Lagrange interpolation reproduces polynomials of degree 5.
+    # Common practice: six-point Lagrange interpolation reproduces polynomials of degree 5
+    # (in spot) between the nodes; linear in spot below the lowest node.
     x0, h = math.log(50.0), 0.03
-    nodes = x0 + h * np.arange(40)
+    spots = np.exp(x0 + h * np.arange(40))
     coeffs = [0.3, -1.2, 0.7, 2.0, -0.5, 0.1]
-    values = np.polyval(coeffs, nodes - 4.0)
-    for s in np.exp(np.linspace(nodes[0], nodes[-1], 57)):
-        expected = np.polyval(coeffs, math.log(s) - 4.0)
-        assert interp_layer(x0, h, values, 0.0, float(s)) == pytest.approx(expected, abs=1e-11)
+    values = np.polyval(coeffs, spots / 50.0)
+    for s in np.exp(np.linspace(x0, x0 + 39 * h, 57)):
+        expected = np.polyval(coeffs, s / 50.0)
+        assert interp_layer(x0, h, values, 0.0, float(s)) == pytest.approx(
+            expected, rel=1e-12, abs=1e-12
+        )
+    assert interp_layer(x0, h, values, 7.0, 20.0) == pytest.approx(
+        7.0 + (values[0] - 7.0) * 0.4, rel=1e-14
+    )
+    assert interp_layer(x0, h, values, 7.0, -1.0) == 7.0
 
 
 def test_smoothed_step_matches_quadrature() -> None:

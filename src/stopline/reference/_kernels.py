@@ -206,14 +206,10 @@ INTERP_POINTS = 6
 
 
 @njit(cache=True)
-def interp_layer(x0: float, h: float, values: np.ndarray, value_at_zero: float, s: float) -> float:
-    """Value at spot ``s`` from values on the log-uniform layer ``exp(x0 + h k)``.
-
-    Lagrange interpolation in log-spot on the six nearest nodes (shifted inwards at the
-    edges); below the lowest node, linear in spot towards ``value_at_zero`` at zero spot
-    (``s <= 0`` gets ``value_at_zero``); above the highest node, linear in spot through the
-    two highest nodes.
-    """
+def _interp(
+    x0: float, h: float, values: np.ndarray, value_at_zero: float, s: float, nodes: np.ndarray
+) -> float:
+    """:func:`interp_layer` with a caller-owned scratch array ``nodes`` of length six."""
     m = values.shape[0]
     if s <= 0.0:
         return value_at_zero
@@ -226,21 +222,37 @@ def interp_layer(x0: float, h: float, values: np.ndarray, value_at_zero: float, 
         s_next = math.exp(x0 + h * (m - 2))
         return values[m - 1] + (values[m - 1] - values[m - 2]) * (s - s_high) / (s_high - s_next)
     z = (math.log(s) - x0) / h
-    half = INTERP_POINTS // 2
-    k = int(math.floor(z)) - (half - 1)
+    k = int(math.floor(z)) - (INTERP_POINTS // 2 - 1)
     if k < 0:
         k = 0
     if k > m - INTERP_POINTS:
         k = m - INTERP_POINTS
-    t = z - k
+    # Lagrange polynomial in spot on the nodes exp(x0 + h j): exact for the nearly linear
+    # values far in or out of the money even when the nodes are far apart.
+    ratio = math.exp(h)
+    nodes[0] = math.exp(x0 + h * k)
+    for j in range(1, INTERP_POINTS):
+        nodes[j] = nodes[j - 1] * ratio
     total = 0.0
     for j in range(INTERP_POINTS):
         w = 1.0
         for i in range(INTERP_POINTS):
             if i != j:
-                w *= (t - i) / (j - i)
+                w *= (s - nodes[i]) / (nodes[j] - nodes[i])
         total += w * values[k + j]
     return total
+
+
+@njit(cache=True)
+def interp_layer(x0: float, h: float, values: np.ndarray, value_at_zero: float, s: float) -> float:
+    """Value at spot ``s`` from values on the log-uniform layer ``exp(x0 + h k)``.
+
+    Lagrange interpolation in spot on the six nodes nearest in log-spot (shifted inwards at
+    the edges); below the lowest node, linear in spot towards ``value_at_zero`` at zero spot
+    (``s <= 0`` gets ``value_at_zero``); above the highest node, linear in spot through the
+    two highest nodes. Needs at least six nodes.
+    """
+    return _interp(x0, h, values, value_at_zero, s, np.empty(INTERP_POINTS))
 
 
 @njit(cache=True)
@@ -253,8 +265,9 @@ def interpolate_shifted(
 ) -> np.ndarray:
     """:func:`interp_layer` at every spot of ``targets``, shape (n_targets,)."""
     out = np.empty(targets.shape[0])
+    scratch = np.empty(INTERP_POINTS)
     for idx in range(targets.shape[0]):
-        out[idx] = interp_layer(x0, h, values, value_at_zero, targets[idx])
+        out[idx] = _interp(x0, h, values, value_at_zero, targets[idx], scratch)
     return out
 
 
@@ -270,10 +283,11 @@ def _pre_exdate_value(
     shift: float,
     add_cum: float,
     y: float,
+    scratch: np.ndarray,
 ) -> float:
     """Value just before an ex-date at lattice spot ``y``: the value just after at
     ``y - shift`` (interpolated), or exercise on the cum-dividend spot ``y + add_cum``."""
-    v = interp_layer(x0, h, values, value_at_zero, y - shift)
+    v = _interp(x0, h, values, value_at_zero, y - shift, scratch)
     if american:
         ex = _exercise_value(is_call, y + add_cum, strike)
         if ex > v:
@@ -300,10 +314,11 @@ def exdate_crossings(
     """
     out = np.empty(grid.shape[0])
     count = 0
+    scratch = np.empty(INTERP_POINTS)
 
     def gap(y: float) -> float:
-        return _exercise_value(is_call, y + add_cum, strike) - interp_layer(
-            x0, h, values, value_at_zero, y - shift
+        return _exercise_value(is_call, y + add_cum, strike) - _interp(
+            x0, h, values, value_at_zero, y - shift, scratch
         )
 
     g_prev = gap(grid[0])
@@ -363,6 +378,7 @@ def smoothed_exdate_step(
     inv_sqrt_2pi = 1.0 / math.sqrt(2.0 * math.pi)
     out = np.empty(spots.shape[0])
     edges = np.empty(n_panels + 1 + kinks.shape[0])
+    scratch = np.empty(INTERP_POINTS)
     for idx in range(spots.shape[0]):
         y = spots[idx]
         count = 0
@@ -386,7 +402,7 @@ def smoothed_exdate_step(
                 z = mid + half * gl_nodes[g]
                 f = _pre_exdate_value(
                     is_call, american, strike, x0, h, values, value_at_zero, shift, add_cum,
-                    y * math.exp(drift + sd * z),
+                    y * math.exp(drift + sd * z), scratch,
                 )  # fmt: skip
                 total += half * gl_weights[g] * inv_sqrt_2pi * math.exp(-0.5 * z * z) * f
         out[idx] = disc * total

@@ -81,7 +81,8 @@ def _check_array(
 ) -> NDArray[np.float64]:
     """Return ``value`` as a float array after checking every element lies in range."""
     if np.ndim(value) == 0:
-        return np.asarray(check_real(field, value, lo=lo, hi=hi, lo_open=lo_open))
+        item = value.item() if isinstance(value, np.ndarray | np.generic) else value
+        return np.asarray(check_real(field, item, lo=lo, hi=hi, lo_open=lo_open))
     arr = np.asarray(value, dtype=np.float64)
     low = arr <= lo if lo_open else arr < lo
     bad = ~np.isfinite(arr) | low | (arr > hi)
