@@ -15,8 +15,10 @@ The search is a safeguarded secant method inside the bracket ``[0.001, 5]``:
 2. a quasi-Newton step that uses the European price as a model of the American one:
    ``v1 = BSM^{-1}(quote - (P(v0) - BSM(v0)))``, exact when the early-exercise premium does
    not depend on the vol;
-3. secant steps, replaced by regula falsi or bisection whenever they would leave the
-   bracket or the bracket stops shrinking, until ``|P(v) - quote|`` is below a tolerance
+3. secant steps (on the square root of the time value for an American option in the
+   money, which is closer to linear in the vol near the exercise region), replaced by
+   bisection whenever they would leave the bracket or stop shrinking fast (Brent's
+   safeguard), until ``|P(v) - quote|`` is below a tolerance
    tied to the accuracy preset (1e-10 x strike at ``"standard"``).
 
 A typical contract needs 4 to 6 price calls at ``"standard"``.
@@ -25,6 +27,7 @@ A typical contract needs 4 to 6 price calls at ``"standard"``.
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass
 
 from ._validate import check_choice, check_real
@@ -242,7 +245,14 @@ def implied_vol_detail(
         )
     euro = _EuropeanModel(option.is_put, market.spot, k, t, market.rate, market.div_yield)
     v0 = euro.initial_guess(quote)
-    vol, p, vega = _search(model, quote, euro, v0, lo, hi, ftol, bounds)
+    transform = None
+    if option.is_american and bounds.lower_name == "intrinsic value" and bounds.lower > 0.0:
+        # in the money: the time value grows like (vol - vol*)^2 where the spot leaves the
+        # exercise region, so its square root is closer to linear for the secant
+        floor = bounds.lower
+        def transform(p: float) -> float:
+            return math.sqrt(max(p - floor, 0.0))
+    vol, p, vega = _search(model, quote, euro, v0, lo, hi, ftol, bounds, transform)
     note = ""
     if vega < SMALL_VEGA * k:
         note = (f"vega {vega:.3g} per unit vol is small (< {SMALL_VEGA:g} x strike): the vol "
@@ -264,59 +274,59 @@ def _check_quote(quote: float, bounds: QuoteBounds, ftol: float) -> None:
 
 
 def _search(
-    model, quote: float, euro: _EuropeanModel, v0: float, lo: float, hi: float, ftol: float,
-    bounds: QuoteBounds,
+    model: Callable[[float], float], quote: float, euro: _EuropeanModel, v0: float, lo: float, hi: float, ftol: float,
+    bounds: QuoteBounds, transform: Callable[[float], float] | None = None,
 ) -> tuple[float, float, float]:
     """Safeguarded secant search for ``model(v) = quote`` in ``[lo, hi]``.
 
+    The secant works on ``transform(price) - transform(quote)`` (an increasing transform;
+    identity by default); the stopping test is on the price itself.
+
     Returns the vol, the model price there and a vega estimate (slope of the last secant).
     """
+    tr = transform if transform is not None else (lambda p: p)
+    t_quote = tr(quote)
     below: tuple[float, float] | None = None  # (vol, f) with f < 0, the largest such vol
     above: tuple[float, float] | None = None  # (vol, f) with f > 0, the smallest such vol
-    hist: list[tuple[float, float]] = []
-    widths: list[float] = []
+    hist: list[tuple[float, float, float]] = []  # (vol, price, transformed gap)
+    steps: list[float] = []
 
     def evaluate(v: float) -> float:
         nonlocal below, above
-        f = model(v) - quote
-        hist.append((v, f))
+        p = model(v)
+        f = tr(p) - t_quote
+        hist.append((v, p, f))
         if f < 0.0 and (below is None or v > below[0]):
             below = (v, f)
         if f > 0.0 and (above is None or v < above[0]):
             above = (v, f)
-        if v == lo and f > 0.0:
+        if v == lo and p > quote + ftol:
             raise ImpliedVolError(
-                quote, f"is below the lowest price the model gives, {f + quote:.6g} at vol "
+                quote, f"is below the lowest price the model gives, {p:.6g} at vol "
                 f"{lo:g} ({bounds.lower_name} {bounds.lower:.6g})")
-        if v == hi and f < 0.0:
+        if v == hi and p < quote - ftol:
             raise ImpliedVolError(
-                quote, f"is above the highest price the model gives, {f + quote:.6g} at vol "
+                quote, f"is above the highest price the model gives, {p:.6g} at vol "
                 f"{hi:g} (upper bound: {bounds.upper_name} {bounds.upper:.6g})")
-        return f
+        return p
 
     v = min(max(v0, lo), hi)
-    f = evaluate(v)
-    while True:
-        if abs(f) <= ftol:
-            break
+    p = evaluate(v)
+    while abs(p - quote) > ftol:
         a = below[0] if below is not None else lo
         b = above[0] if above is not None else hi
-        if below is not None and above is not None:
-            widths.append(b - a)
-            if b - a <= VOL_TOLERANCE:
-                break
+        if below is not None and above is not None and b - a <= VOL_TOLERANCE:
+            break
         if len(hist) >= MAX_PRICE_CALLS:
             raise ConvergenceError(
                 f"implied vol: no convergence after {len(hist)} price calls (quote={quote!r}, "
                 f"bracket [{a:.6g}, {b:.6g}])")
         cand = _candidate(hist, euro, quote)
         if below is not None and above is not None:
-            width = b - a
-            margin = 1e-3 * width
-            if cand is None or not (a + margin < cand < b - margin):
-                cand = a - below[1] * (b - a) / (above[1] - below[1])  # regula falsi
-                cand = min(max(cand, a + margin), b - margin)
-            if len(widths) >= 3 and widths[-1] > 0.5 * widths[-3]:
+            # Brent's safeguard: bisect when the step leaves the bracket or fails to shrink
+            # to half the step before last
+            if (cand is None or not (a < cand < b)
+                    or (len(steps) >= 2 and abs(cand - v) > 0.5 * steps[-2])):
                 cand = 0.5 * (a + b)
         elif above is None:  # only prices below the quote seen: the root lies higher
             if cand is None or cand >= b:
@@ -328,35 +338,36 @@ def _search(
                 cand = lo
             elif cand >= b:
                 cand = math.sqrt(a * b)
+        steps.append(abs(cand - v))
         v = cand
-        f = evaluate(v)
-    best_v, best_f = min(hist, key=lambda p: abs(p[1]))
+        p = evaluate(v)
+    best_v, best_p, _ = min(hist, key=lambda h: abs(h[1] - quote))
     vega = _slope(hist, best_v, euro)
-    return best_v, best_f + quote, vega
+    return best_v, best_p, vega
 
 
 def _candidate(
-    hist: list[tuple[float, float]], euro: _EuropeanModel, quote: float
+    hist: list[tuple[float, float, float]], euro: _EuropeanModel, quote: float
 ) -> float | None:
     """Next vol to try: secant on the last two points, else a European-model step."""
-    v1, f1 = hist[-1]
+    v1, p1, f1 = hist[-1]
     if len(hist) >= 2:
-        v0, f0 = hist[-2]
+        v0, _, f0 = hist[-2]
         if f1 != f0 and v1 != v0:
             slope = (f1 - f0) / (v1 - v0)
             if slope > 0.0:
                 return v1 - f1 / slope
-    return euro.model_step(v1, f1 + quote, quote)
+    return euro.model_step(v1, p1, quote)
 
 
-def _slope(hist: list[tuple[float, float]], v: float, euro: _EuropeanModel) -> float:
+def _slope(hist: list[tuple[float, float, float]], v: float, euro: _EuropeanModel) -> float:
     """Vega estimate at ``v``: the secant through the evaluated point nearest to it."""
-    others = [(abs(u - v), u, g) for u, g in hist if u != v]
+    others = [(abs(u - v), u, p) for u, p, _ in hist if u != v]
     if not others:
         return euro.vega(v)
-    f_v = next(g for u, g in hist if u == v)
-    _, u, g = min(others)
-    return (g - f_v) / (u - v)
+    p_v = next(p for u, p, _ in hist if u == v)
+    _, u, p = min(others)
+    return (p - p_v) / (u - v)
 
 
 class _EuropeanModel:
