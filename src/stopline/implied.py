@@ -219,12 +219,15 @@ def implied_vol_detail(
     ftol = PRICE_TOLERANCE[acc] * k
     _check_quote(quote, bounds, ftol)
     calls = 0
+    error_estimates: dict[float, float] = {}
 
     def model(vol: float) -> float:
         nonlocal calls
         calls += 1
         mkt = Market(market.spot, market.rate, vol, market.div_yield, market.valuation_date)
-        return price(option, mkt, accuracy=acc).price
+        res = price(option, mkt, accuracy=acc)
+        error_estimates[vol] = res.error_estimate
+        return res.price
 
     lo, hi = VOL_BRACKET
     if quote <= bounds.lower + ftol:
@@ -253,11 +256,14 @@ def implied_vol_detail(
         def transform(p: float) -> float:
             return math.sqrt(max(p - floor, 0.0))
     vol, p, vega = _search(model, quote, euro, v0, lo, hi, ftol, bounds, transform)
-    note = ""
+    notes = []
     if vega < SMALL_VEGA * k:
-        note = (f"vega {vega:.3g} per unit vol is small (< {SMALL_VEGA:g} x strike): the vol "
-                "is poorly determined by the quote")
-    return ImpliedVolResult(vol, p, calls, vega, note)
+        notes.append(f"vega {vega:.3g} per unit vol is small (< {SMALL_VEGA:g} x strike): the "
+                     "vol is poorly determined by the quote")
+    if quote - bounds.lower <= error_estimates[vol]:
+        notes.append(f"the quote is within the price's error estimate ({error_estimates[vol]:.2g})"
+                     f" of the {bounds.lower_name}: the vol is poorly determined by the quote")
+    return ImpliedVolResult(vol, p, calls, vega, "; ".join(notes))
 
 
 def _check_quote(quote: float, bounds: QuoteBounds, ftol: float) -> None:
