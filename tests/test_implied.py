@@ -122,7 +122,7 @@ def test_geske_johnson_table_gives_back_its_vols() -> None:
     checked = 0
     for k, by_vol in GESKE_JOHNSON.items():
         for vol, prices in by_vol.items():
-            for t, quote in zip(GJ_EXPIRIES, prices):
+            for t, quote in zip(GJ_EXPIRIES, prices, strict=True):
                 opt, mkt = Option("put", k, t), Market(40.0, 0.0488, 0.25)
                 if quote == 5.0:
                     # K = 45, T = 0.0833, vol 0.2: the table's price is the intrinsic value,
