@@ -231,3 +231,10 @@ def test_quote_bounds_american_call_without_yield_uses_the_european_bound() -> N
     b = quote_bounds(Option("call", 100.0, 1.0), Market(110.0, 0.05, 0.2), 1.0)
     assert b.lower == pytest.approx(110.0 - 100.0 * math.exp(-0.05))
     assert b.lower_name == "European lower bound" and b.upper == 110.0
+
+
+def test_returns_plain_floats() -> None:
+    opt, mkt = Option("put", 100.0, 0.5), Market(95.0, 0.04, 0.2, 0.01)
+    res = implied_vol_detail(opt, mkt, 8.10)
+    assert type(implied_vol(opt, mkt, 8.10)) is float
+    assert type(res.vol) is float and type(res.model_price) is float and type(res.vega) is float

@@ -263,7 +263,7 @@ def implied_vol_detail(
     if quote - bounds.lower <= error_estimates[vol]:
         notes.append(f"the quote is within the price's error estimate ({error_estimates[vol]:.2g})"
                      f" of the {bounds.lower_name}: the vol is poorly determined by the quote")
-    return ImpliedVolResult(vol, p, calls, vega, "; ".join(notes))
+    return ImpliedVolResult(float(vol), float(p), calls, float(vega), "; ".join(notes))
 
 
 def _check_quote(quote: float, bounds: QuoteBounds, ftol: float) -> None:
