@@ -238,3 +238,17 @@ def test_returns_plain_floats() -> None:
     res = implied_vol_detail(opt, mkt, 8.10)
     assert type(implied_vol(opt, mkt, 8.10)) is float
     assert type(res.vol) is float and type(res.model_price) is float and type(res.vega) is float
+
+
+def test_quote_just_above_intrinsic_past_a_wide_flat_region() -> None:
+    # Found by a random search: deep in the money and long-dated, the price equals the
+    # intrinsic value for every vol up to about 0.48, so secant steps from a low first guess
+    # see no slope; the search must widen the bracket rather than creep (it once stopped at
+    # its call cap here).
+    opt = Option("call", 100.0, 10.0)
+    mkt = Market(189.66786107490836, -0.0157950673917737, 0.2, 0.11923470485798111)
+    quote = 89.70814323788944  # intrinsic 89.66786...
+    res = implied_vol_detail(opt, mkt, quote)
+    again = price(opt, Market(mkt.spot, mkt.rate, res.vol, mkt.div_yield)).price
+    assert abs(again - quote) <= 1e-8 * 100.0
+    assert 0.4 < res.vol < 0.6

@@ -355,11 +355,17 @@ def _search(
 def _candidate(
     hist: list[tuple[float, float, float]], euro: _EuropeanModel, quote: float
 ) -> float | None:
-    """Next vol to try: secant on the last two points, else a European-model step."""
+    """Next vol to try: secant on the last two points, else a European-model step.
+
+    None when the last two prices are equal: the price is flat there and neither step
+    moves far enough.
+    """
     v1, p1, f1 = hist[-1]
     if len(hist) >= 2:
         v0, _, f0 = hist[-2]
-        if f1 != f0 and v1 != v0:
+        if f1 == f0:
+            return None  # flat (e.g. at intrinsic for every low vol): the caller widens
+        if v1 != v0:
             slope = (f1 - f0) / (v1 - v0)
             if slope > 0.0:
                 return v1 - f1 / slope
