@@ -252,3 +252,33 @@ def test_quote_just_above_intrinsic_past_a_wide_flat_region() -> None:
     again = price(opt, Market(mkt.spot, mkt.rate, res.vol, mkt.div_yield)).price
     assert abs(again - quote) <= 1e-8 * 100.0
     assert 0.4 < res.vol < 0.6
+
+
+@pytest.mark.parametrize("row", [SPREAD[0], SPREAD[4], SPREAD[12]], ids=["atm", "itm", "long"])
+def test_price_does_not_jump_where_the_grid_gains_a_node(row: tuple) -> None:
+    # The root search relies on a price continuous in the vol. The grid's spacing moves
+    # continuously with the vol, but its number of nodes (and so its domain) changes in
+    # steps: find those steps in a sweep, close in on each to 1e-13 in vol, and check the
+    # price moves there by no more than rounding.
+    opt, mkt, vol = _case(row)
+    k = opt.strike
+
+    def solve(v: float) -> tuple[float, tuple[float, float]]:
+        r = price(opt, Market(mkt.spot, mkt.rate, v, mkt.div_yield))
+        return r.price, r.stats.domain
+
+    vols = [vol * (0.97 + 0.06 * i / 100) for i in range(101)]
+    grids = [solve(v)[1] for v in vols]
+    steps = 0
+    for a, b, ga, gb in zip(vols, vols[1:], grids, grids[1:], strict=False):
+        if ga == gb:
+            continue
+        while b - a > 1e-13:
+            m = 0.5 * (a + b)
+            if solve(m)[1] == ga:
+                a = m
+            else:
+                b = m
+        assert abs(solve(b)[0] - solve(a)[0]) <= 1e-12 * k
+        steps += 1
+    assert steps >= 1  # the sweep did cross a change of grid

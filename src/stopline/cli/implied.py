@@ -129,6 +129,9 @@ def solve_row(row: dict[str, str | None], accuracy: str = "standard") -> RowOutc
         res = implied_vol_detail(option, market, _number(row, "quote"), accuracy=accuracy)
     except (StoplineError, _RowShape) as exc:
         return RowOutcome(math.nan, "error", str(exc), strike, t, label)
+    except Exception as exc:  # noqa: BLE001 - a batch keeps every row; say it is unexpected
+        return RowOutcome(math.nan, "error", f"unexpected {type(exc).__name__}: {exc} (please "
+                          "report this row)", strike, t, label)
     return RowOutcome(res.vol, "ok", res.note, strike, t, label, res.price_calls)
 
 
