@@ -238,7 +238,7 @@ def _write_png(path: Path, fig: Figure) -> None:
 
 @guard
 def implied_cmd(
-    quotes: Path = typer.Argument(..., help="CSV of quotes (see the header columns below)."),
+    quotes: Path = typer.Argument(..., help="CSV of quotes with a header row."),
     out: Path = typer.Option(..., "--out", help="Directory for implied.csv and smile.png."),
     workers: int = typer.Option(
         None, "--workers", min=1, help="Processes to use (default: all cores)."
@@ -248,9 +248,9 @@ def implied_cmd(
 ) -> None:
     """Implied vols of a chain of American or European quotes, with a smile plot.
 
-    Columns: id, kind (put/call), style (american/european), spot, strike, expiry (years
-    or YYYY-MM-DD), rate, quote; optional div_yield and valuation_date. Other columns are
-    carried through. Exit code 1 if any row had an error (all rows are still written).
+    Columns: id, kind, style, spot, strike, expiry (years or YYYY-MM-DD), rate, quote.
+    Optional: div_yield, valuation_date. Other columns are carried through.
+    Writes OUT/implied.csv and OUT/smile.png; exit code 1 if any row had an error.
     """
     from concurrent.futures import ProcessPoolExecutor
 
