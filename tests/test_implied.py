@@ -141,14 +141,15 @@ def test_error_is_an_input_error_naming_the_quote() -> None:
     assert issubclass(ImpliedVolError, ValueError)
     with pytest.raises(ImpliedVolError) as info:
         implied_vol(Option("put", 100.0, 1.0), Market(90.0, 0.05, 0.2), 9.5)
-    assert info.value.field == "quote"
+    assert info.value.field == "quote" and info.value.cause == "below_bound"
     msg = str(info.value)
     assert "below the intrinsic value 10" in msg and "9.5" in msg
 
 
 def test_quote_above_the_strike_for_a_put() -> None:
-    with pytest.raises(ImpliedVolError, match="upper bound, the strike 100"):
+    with pytest.raises(ImpliedVolError, match="upper bound, the strike 100") as info:
         implied_vol(Option("put", 100.0, 1.0), Market(90.0, 0.05, 0.2), 100.5)
+    assert info.value.cause == "above_bound"
 
 
 def test_quote_above_the_spot_for_a_call() -> None:
@@ -169,7 +170,7 @@ def test_quote_at_intrinsic_in_the_exercise_region_is_not_unique() -> None:
     # low vol: its price is K - S for all of them.
     with pytest.raises(ImpliedVolError, match="not unique") as info:
         implied_vol(Option("put", 100.0, 1.0), Market(60.0, 0.05, 0.2), 40.0)
-    assert "40" in str(info.value)
+    assert "40" in str(info.value) and info.value.cause == "not_unique"
 
 
 def test_quote_below_the_lowest_model_price() -> None:
@@ -177,14 +178,16 @@ def test_quote_below_the_lowest_model_price() -> None:
     opt, mkt = Option("put", 100.0, 1.0), Market(100.0, 0.0, 0.2)
     with pytest.raises(ImpliedVolError, match="below the lowest price the model gives"):
         implied_vol(opt, mkt, 0.0)
-    with pytest.raises(ImpliedVolError, match="below the lowest price the model gives"):
+    with pytest.raises(ImpliedVolError, match="below the lowest price the model gives") as info:
         implied_vol(opt, mkt, 0.01)
+    assert info.value.cause == "below_model"
 
 
 def test_quote_above_the_highest_model_price() -> None:
     # A 0.1-year at-the-money put at vol 5 is worth about 0.4 x 5 x sqrt(0.1) x 100 = 63.
-    with pytest.raises(ImpliedVolError, match="above the highest price the model gives"):
+    with pytest.raises(ImpliedVolError, match="above the highest price the model gives") as info:
         implied_vol(Option("put", 100.0, 0.1), Market(100.0, 0.05, 0.2), 95.0)
+    assert info.value.cause == "above_model"
 
 
 def test_expired_option_has_no_implied_vol() -> None:

@@ -44,11 +44,14 @@ __all__ = [
     "ImpliedVolResult",
     "QuoteBounds",
     "VOL_BRACKET",
+    "CAUSES",
     "implied_vol",
     "implied_vol_detail",
     "quote_bounds",
 ]
 
+#: Values of :attr:`ImpliedVolError.cause`.
+CAUSES = ("below_bound", "above_bound", "below_model", "above_model", "not_unique", "expired")
 #: Volatilities searched: an implied vol outside this interval is reported as an error.
 VOL_BRACKET = (0.001, 5.0)
 #: Stop when ``|price - quote| <= tolerance x strike``, by accuracy preset.
@@ -65,11 +68,25 @@ class ImpliedVolError(InputError):
     """No volatility in :data:`VOL_BRACKET` explains the quote, or many do.
 
     The message says which bound the quote violates, the bound's value and the quote.
-    ``field`` is ``"quote"``.
+    ``field`` is ``"quote"``; ``cause`` is one of :data:`CAUSES`, for programs that sort
+    the failures of a chain.
+
+    Parameters
+    ----------
+    quote : float
+        The quote.
+    reason : str
+        The message after ``quote=...:``.
+    cause : str
+        ``"below_bound"`` (below intrinsic or the European lower bound), ``"above_bound"``
+        (at or above the strike, spot or their discounted values), ``"below_model"`` /
+        ``"above_model"`` (outside the prices of vols 0.001 to 5), ``"not_unique"`` (at the
+        lower bound, where every low vol gives the quote) or ``"expired"``.
     """
 
-    def __init__(self, quote: float, reason: str) -> None:
+    def __init__(self, quote: float, reason: str, cause: str) -> None:
         super().__init__("quote", quote, reason)
+        self.cause = cause
 
 
 @dataclass(frozen=True)
@@ -218,7 +235,7 @@ def implied_vol_detail(
     k = option.strike
     if t == 0.0:
         raise ImpliedVolError(quote, "the option expires now: its price is the intrinsic value "
-                              "whatever the vol, so no vol is implied")
+                              "whatever the vol, so no vol is implied", "expired")
     bounds = quote_bounds(option, market, t)
     ftol = PRICE_TOLERANCE[acc] * k
     _check_quote(quote, bounds, ftol)
@@ -246,11 +263,13 @@ def implied_vol_detail(
                     f"equals the {bounds.lower_name} {bounds.lower:.6g}; the model gives this "
                     f"price for every vol from {lo:g} up to at least {v:g} (the spot is in the "
                     "exercise region or the time value is nil), so the vol is not unique",
+                    "not_unique",
                 )
         raise ImpliedVolError(
             quote,
             f"is below the lowest price the model gives, {p_v:.6g} at vol {lo:g} "
             f"({bounds.lower_name} {bounds.lower:.6g})",
+            "below_model",
         )
     euro = _EuropeanModel(option.is_put, market.spot, k, t, market.rate, market.div_yield)
     v0 = euro.initial_guess(quote)
@@ -275,13 +294,15 @@ def implied_vol_detail(
 def _check_quote(quote: float, bounds: QuoteBounds, ftol: float) -> None:
     if quote < bounds.lower - ftol:
         raise ImpliedVolError(
-            quote, f"is below the {bounds.lower_name} {bounds.lower:.6g}: no vol explains it"
+            quote, f"is below the {bounds.lower_name} {bounds.lower:.6g}: no vol explains it",
+            "below_bound",
         )
     if quote >= bounds.upper:
         raise ImpliedVolError(
             quote,
             f"is at or above the no-arbitrage upper bound, the {bounds.upper_name} "
             f"{bounds.upper:.6g}: no vol explains it",
+            "above_bound",
         )
 
 
@@ -315,11 +336,11 @@ def _search(
         if v == lo and p > quote + ftol:
             raise ImpliedVolError(
                 quote, f"is below the lowest price the model gives, {p:.6g} at vol "
-                f"{lo:g} ({bounds.lower_name} {bounds.lower:.6g})")
+                f"{lo:g} ({bounds.lower_name} {bounds.lower:.6g})", "below_model")
         if v == hi and p < quote - ftol:
             raise ImpliedVolError(
                 quote, f"is above the highest price the model gives, {p:.6g} at vol "
-                f"{hi:g} (upper bound: {bounds.upper_name} {bounds.upper:.6g})")
+                f"{hi:g} (upper bound: {bounds.upper_name} {bounds.upper:.6g})", "above_model")
         return p
 
     v = min(max(v0, lo), hi)
