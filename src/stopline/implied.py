@@ -2,10 +2,10 @@
 
 The price function inverted is :func:`stopline.pricing.price` itself, at the requested
 accuracy, so a round trip (price, then implied vol, then price) returns the quote to within
-the root-finding tolerance. That price is continuous in the vol: the grid's nodes (spacing
-``vol sqrt(T) / points``) move continuously with it, and the integer number of nodes at the
-far ends of the domain changes the price only at rounding level (measured below 1e-12 of the
-strike; see the tests). It is piecewise smooth, with kinks where the discrete exercise
+the root-finding tolerance. That price is continuous in the vol: the grid is rebuilt for
+each vol, its spacing moves continuously with it, and where its integer number of nodes
+changes the price moves only at rounding level (measured below 1e-12 of the strike; see the
+tests), so no fixed grid is needed for the search. It is piecewise smooth, with kinks where the discrete exercise
 boundary crosses a node; and just outside the exercise region it can dip below the intrinsic
 value and lose monotonicity at about the grid's error (1e-6 x strike at ``"standard"``),
 where the result carries a note that the vol is poorly determined.
