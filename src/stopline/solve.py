@@ -104,5 +104,6 @@ def solve(
     plan = plan_steps(time, space.h, problem.rate, problem.div_yield, problem.vol, space.frame)
     v = payoff_on(space, problem.is_put)
     report = method.march(v, np.exp(space.x), space, plan, problem.is_put, problem.american)
+    v /= plan.scale[-1]
     payoff = payoff_on(space, problem.is_put, float(plan.shift[-1]))
     return GridSolution(space, time, v, payoff, plan.drift, report)
