@@ -9,6 +9,7 @@ from __future__ import annotations
 import typer
 
 from . import demo as _demo
+from . import implied as _implied
 from . import price as _price
 from . import validate as _validate
 
@@ -21,6 +22,7 @@ app = typer.Typer(
 )
 app.command("price")(_price.price_cmd)
 app.command("demo")(_demo.demo_cmd)
+app.command("implied")(_implied.implied_cmd)
 app.command("validate")(_validate.validate_cmd)
 
 
