@@ -39,7 +39,6 @@ from .exercise import DirectSweep
 from .greeks import read_at_spot
 from .grid import build_space_grid, build_time_grid
 from .market import Market
-from .operator import max_monotone_spacing
 from .pricing import PRESETS, price
 from .solve import PDEProblem, solve
 
@@ -291,7 +290,7 @@ def _pde_value(p: PDEProblem, pps: float, levels: int, *, grading: float = 2.0,
     space = build_space_grid(p.x_spot, sd, drift, width_sd=width_sd, points_per_sd=pps)
     tgrid = build_time_grid(p.expiry, levels, grading=grading, rannacher=rannacher)
     sol = solve(p, space, tgrid, DirectSweep())
-    return read_at_spot(sol.values, sol.payoff, space.x_min, space.h, p.x_spot, strike,
+    return read_at_spot(sol.values, sol.payoff, sol.x_min, space.h, p.x_spot, strike,
                         p.american).value
 
 
@@ -299,22 +298,19 @@ def _own_fine(kind: str, american: bool, s: float, k: float, t: float, r: float,
               v: float) -> float:
     """The core's answer on grids twice as fine as the "fine" preset in space and time.
 
-    Richardson-extrapolated from two grids (160 and 80 points per standard deviation, spacing
-    at most 0.001 and 0.002 in ``ln S``; 800 and 400 graded time levels), domain 8 standard
-    deviations wide: the "own fine-grid computation" the presets are measured against.
+    The "fine" preset solves a grid and its refinement and extrapolates; this solves the next
+    two refinements of the same grid (same frame, domain and grading) and extrapolates them
+    likewise: the "own fine-grid computation" the presets are measured against.
     """
-    fine = PRESETS["fine"]
+    from .pricing import _resolve_grid
+
     p = PDEProblem(kind == "put", american, t, r, q, v, math.log(s / k))
-    sd = v * math.sqrt(t)
-    drift = (r - q - 0.5 * v * v) * t
-    h_max = min(max_monotone_spacing(r, q, v), fine.max_spacing)
-    space = build_space_grid(p.x_spot, sd, drift, width_sd=fine.width_sd + 1.0,
-                             points_per_sd=fine.points_per_sd, h_max=h_max)
-    tgrid = build_time_grid(t, fine.time_levels)
+    space, tgrid, _ = _resolve_grid(p, "fine", None)
+    space, tgrid = space.refined(), tgrid.refined()
     out = []
     for sp, tg in ((space, tgrid), (space.refined(), tgrid.refined())):
         sol = solve(p, sp, tg, DirectSweep())
-        out.append(read_at_spot(sol.values, sol.payoff, sp.x_min, sp.h, p.x_spot, k, american))
+        out.append(read_at_spot(sol.values, sol.payoff, sol.x_min, sp.h, p.x_spot, k, american))
     rc, rf = out
     return rf.value if rf.exercised else rf.value + (rf.value - rc.value) / 3.0
 
@@ -474,7 +470,7 @@ def _convergence_section(quick: bool) -> tuple[Section, list[ConvergenceCurve]]:
         space = build_space_grid(0.0, sd, 0.0, width_sd=6.0, points_per_sd=k)
         tg = build_time_grid(tw, k, rannacher=rannacher, grading=grading)
         sol = solve(p, space, tg, DirectSweep())
-        return read_at_spot(sol.values, sol.payoff, space.x_min, space.h, 0.0, 100.0,
+        return read_at_spot(sol.values, sol.payoff, sol.x_min, space.h, 0.0, 100.0,
                             False).gamma
 
     kg = [10, 20, 40, 80]
@@ -891,9 +887,8 @@ def _sample_section(quick: bool) -> tuple[Section, list[FrontierPoint]]:
         "Distribution of |error| / K of each preset over the sample",
         ("preset", "target", "options above target", "median", "90th pct", "99th pct", "max",
          "RMS"), tuple(over_rows),
-        f"Against the {OWN}; that reference is itself uncertain at about 1e-8 K for the "
-        "hardest contracts (difference between its own last two Richardson levels), so the "
-        "fine preset's errors below that are not resolved.",
+        f"Against the {OWN}, which carries its own (smaller) error: the fine preset's "
+        "measured errors include it, so they are upper estimates.",
     )
     worst = Table(
         "Contracts with the largest standard-preset errors (signed error / K)",
