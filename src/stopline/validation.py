@@ -725,6 +725,18 @@ def _identities_section(quick: bool) -> Section:
         "American call without dividends = European call (S=K=100, r=0.05, vol 0.2, T=1)",
         "Merton (1973): early exercise of a call is never optimal without dividends; "
         "Black-Scholes value 10.45058 (recalled)", am, 10.45058, 1e-5))
+    worst = 0.0
+    for s in ((80.0, 100.0, 120.0) if not quick else (100.0,)):
+        for t in ((0.25, 1.0, 3.0) if not quick else (1.0,)):
+            for r in (0.01, 0.08):
+                am = _pde("call", "american", s, 100.0, t, r, 0.0, 0.3, "standard")
+                worst = max(worst, abs(am - _bsm("call", s, 100.0, t, r, 0.0, 0.3)) / 100.0)
+    checks.append(_at_most(
+        "American call without dividends = Black-Scholes call, standard preset: max "
+        "|error| / K", "Merton (1973): early exercise of a call is never optimal without "
+        "dividends (exact); tolerance the standard preset's target", worst, 1e-6,
+        "spots 80-120, expiries 0.25-3, rates 0.01 and 0.08, vol 0.3" if not quick
+        else "S = 100, T = 1, rates 0.01 and 0.08, vol 0.3"))
     c = _pde("call", "american", 110.0, 100.0, 1.0, 0.03, 0.07, 0.3, "fine")
     p = _pde("put", "american", 100.0, 110.0, 1.0, 0.07, 0.03, 0.3, "fine")
     checks.append(_within(
