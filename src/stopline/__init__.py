@@ -5,12 +5,15 @@ from __future__ import annotations
 from .contract import Option
 from .errors import ConvergenceError, InputError, StoplineError
 from .exercise import METHODS, DirectSweep, ProjectedSOR
-from .market import Market
+from .market import Market, parse_dividends
 from .pricing import PRESETS, ExerciseBoundary, GridSpec, Result, SolveStats, price
+from .termstructure import PiecewiseConstant
 
 __all__ = [
     "Option",
     "Market",
+    "PiecewiseConstant",
+    "parse_dividends",
     "price",
     "Result",
     "ExerciseBoundary",

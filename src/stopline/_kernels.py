@@ -29,6 +29,7 @@ __all__ = [
     "march_psor",
     "locate_boundary",
     "thomas_repeat",
+    "dividend_jump",
 ]
 
 
@@ -294,3 +295,80 @@ def thomas_repeat(rhs0, a, b, c, n_solves, out):
         out[n - 1] = r[n - 1] * w[n - 1]
         for j in range(n - 2, -1, -1):
             out[j] = (r[j] - c * out[j + 1]) * w[j]
+
+
+@njit(cache=True)
+def dividend_jump(v, payoff, x0, h, d, df_r, df_q, is_put, american, out):
+    """Values just before an ex-dividend date from those just after: the spot drops by ``d``.
+
+    ``out_j = v(ln(max(e^{x_j} - d, 0)))``, floored by the payoff for an American option
+    (exercise just before the drop), with ``d`` the cash amount / strike.
+
+    Parameters
+    ----------
+    v : ndarray, shape (n,)
+        Value / strike after the ex-date (read only).
+    payoff : ndarray, shape (n,)
+        Exercise value / strike on the nodes.
+    x0, h : float
+        First node and spacing of the uniform log-moneyness grid.
+    d : float
+        Dividend / strike, >= 0.
+    df_r, df_q : float
+        Discount factors for rate and yield from expiry to the ex-date (far-field values).
+    is_put, american : bool
+        Contract flags.
+    out : ndarray, shape (n,)
+        Written: the values before the ex-date.
+
+    Notes
+    -----
+    Between nodes the value is a four-point Lagrange cubic in ``x`` limited to the range of
+    the two bracketing nodes, so a monotone value stays monotone and non-negative. A
+    dropped spot below the first node takes the far-field value of :func:`far_values` at
+    ``max(S - D, 0)``, the same asymptote the march uses at that node.
+    """
+    n = v.shape[0]
+    s_lo = math.exp(x0)
+    for j in range(n):
+        s = math.exp(x0 + j * h) - d
+        if s <= s_lo:
+            if s < 0.0:
+                s = 0.0
+            if is_put:
+                val = df_r - s * df_q
+                if val < 0.0:
+                    val = 0.0
+                if american and 1.0 - s > val:
+                    val = 1.0 - s
+            else:
+                val = 0.0
+        else:
+            y = (math.log(s) - x0) / h
+            i = int(math.floor(y))
+            if i > n - 2:
+                i = n - 2
+            j0 = i - 1
+            if j0 < 0:
+                j0 = 0
+            if j0 > n - 4:
+                j0 = n - 4
+            t = y - j0
+            a0 = t - 1.0
+            a1 = t - 2.0
+            a2 = t - 3.0
+            val = (
+                -a0 * a1 * a2 / 6.0 * v[j0]
+                + t * a1 * a2 / 2.0 * v[j0 + 1]
+                - t * a0 * a2 / 2.0 * v[j0 + 2]
+                + t * a0 * a1 / 6.0 * v[j0 + 3]
+            )
+            lo = v[i] if v[i] < v[i + 1] else v[i + 1]
+            hi = v[i] if v[i] > v[i + 1] else v[i + 1]
+            if val < lo:
+                val = lo
+            elif val > hi:
+                val = hi
+        if american and payoff[j] > val:
+            val = payoff[j]
+        out[j] = val

@@ -10,7 +10,8 @@ Central differences on spacing ``h`` give, at each interior node,
     lo = s^2 / (2 h^2) - mu / (2 h),  di = -s^2 / h^2 - r,  up = s^2 / (2 h^2) + mu / (2 h),
 
 with ``mu = r - q - s^2 / 2``. The coefficients do not depend on ``x``, so a step is described
-by three numbers; time-dependent rates, yields or vols give one triple per step.
+by three numbers; time-dependent rates, yields or vols (:mod:`stopline.termstructure`) give
+one triple per step.
 """
 
 from __future__ import annotations
@@ -21,6 +22,7 @@ import numpy as np
 
 from ._types import FloatArray
 from .grid import TimeGrid
+from .termstructure import Curve, PiecewiseConstant, curve_values
 
 __all__ = ["StepPlan", "plan_steps", "max_monotone_spacing"]
 
@@ -48,9 +50,17 @@ class StepPlan:
     df_r: FloatArray
     df_q: FloatArray
 
+    def part(self, start: int, stop: int) -> StepPlan:
+        """The plan of steps ``start .. stop - 1`` (views, no copies)."""
+        sl = slice(start, stop)
+        return StepPlan(
+            self.tau[sl], self.dt[sl], self.theta[sl], self.lo[sl], self.di[sl], self.up[sl],
+            self.df_r[sl], self.df_q[sl],
+        )
 
-def plan_steps(time: TimeGrid, h: float, rate: float, div_yield: float, vol: float) -> StepPlan:
-    """Per-step operator coefficients and discount factors for flat market data.
+
+def plan_steps(time: TimeGrid, h: float, rate: Curve, div_yield: Curve, vol: Curve) -> StepPlan:
+    """Per-step operator coefficients and discount factors.
 
     Parameters
     ----------
@@ -58,24 +68,40 @@ def plan_steps(time: TimeGrid, h: float, rate: float, div_yield: float, vol: flo
         The steps.
     h : float
         Spacing of the log-moneyness grid.
-    rate, div_yield, vol : float
-        Continuously compounded rate and yield, annual volatility.
+    rate, div_yield, vol : float or PiecewiseConstant
+        Continuously compounded rate and yield, annual volatility; flat, or a curve in
+        calendar time from valuation (``t = T - tau``). A curve is evaluated at each step's
+        midpoint: put the curve's breakpoints on time levels (see
+        :class:`~stopline.grid.SegmentedTimeGrid`) so that no step straddles one. Discount
+        factors are exact integrals of the curves.
     """
-    s2 = vol * vol
-    mu = rate - div_yield - 0.5 * s2
+    expiry = time.expiry
+    tau_prev = time.tau - time.dt
+    t_mid = np.maximum(expiry - 0.5 * (time.tau + tau_prev), 0.0)
+    r = curve_values(rate, t_mid)
+    q = curve_values(div_yield, t_mid)
+    s2 = curve_values(vol, t_mid) ** 2
+    mu = r - q - 0.5 * s2
     alpha = 0.5 * s2 / (h * h)
     beta = 0.5 * mu / h
-    ones = np.ones_like(time.dt)
     return StepPlan(
         tau=time.tau,
         dt=time.dt,
         theta=time.theta,
-        lo=(alpha - beta) * ones,
-        di=(-2.0 * alpha - rate) * ones,
-        up=(alpha + beta) * ones,
-        df_r=np.exp(-rate * time.tau),
-        df_q=np.exp(-div_yield * time.tau),
+        lo=alpha - beta,
+        di=-2.0 * alpha - r,
+        up=alpha + beta,
+        df_r=np.exp(-_integral_to_expiry(rate, time.tau, expiry)),
+        df_q=np.exp(-_integral_to_expiry(div_yield, time.tau, expiry)),
     )
+
+
+def _integral_to_expiry(curve: Curve, tau: FloatArray, expiry: float) -> FloatArray:
+    """``int_{T - tau}^{T} c(t) dt`` for each ``tau``."""
+    if isinstance(curve, PiecewiseConstant):
+        t0 = np.maximum(expiry - tau, 0.0)
+        return curve.cumulative(np.full_like(tau, expiry)) - curve.cumulative(t0)
+    return float(curve) * tau
 
 
 def max_monotone_spacing(rate: float, div_yield: float, vol: float) -> float:

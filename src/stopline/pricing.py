@@ -13,11 +13,18 @@ from .contract import Option
 from .daycount import DEFAULT_DAY_COUNT
 from .errors import InputError
 from .exercise import ExerciseMethod, ProjectedSOR, get_method
-from .greeks import GridReadout, read_at_spot, theta_from_pde
-from .grid import SpaceGrid, TimeGrid, build_space_grid, build_time_grid
+from .greeks import GridReadout, read_at_spot
+from .grid import SpaceGrid, TimeGrid, build_space_grid
 from .market import Market
 from .operator import max_monotone_spacing
-from .solve import GridSolution, PDEProblem, solve
+from .solve import (
+    GridSolution,
+    PDEProblem,
+    problem_from_market,
+    solve,
+    theta_at_valuation,
+    time_grid_for,
+)
 
 __all__ = [
     "AccuracyPreset",
@@ -196,7 +203,7 @@ def _resolve_grid(
         space = build_space_grid(
             problem.x_spot, sd, drift, width_sd=preset.width_sd, n_points=coarse_n, h_max=h_max
         )
-        time = build_time_grid(problem.expiry, max(spec.time_levels // 2, 2))
+        time = time_grid_for(problem, max(spec.time_levels // 2, 2))
         return space, time, "custom"
     name = check_choice("accuracy", accuracy, tuple(PRESETS))
     preset = PRESETS[name]
@@ -204,7 +211,7 @@ def _resolve_grid(
         problem.x_spot, sd, drift, width_sd=preset.width_sd,
         points_per_sd=0.5 * preset.points_per_sd, h_max=2.0 * min(h_max, preset.max_spacing),
     )
-    time = build_time_grid(problem.expiry, preset.time_levels // 2)
+    time = time_grid_for(problem, preset.time_levels // 2)
     return space, time, name
 
 
@@ -279,18 +286,15 @@ def price(
         return _expired(option, market, solver, t)
     k = option.strike
     american = option.is_american
-    warnings: list[str] = []
-    if american and _two_boundaries_possible(option.is_put, market.rate, market.div_yield):
+    problem = problem_from_market(option, market, t)
+    warnings: list[str] = list(problem.warnings)
+    if american and _two_boundaries_possible(option.is_put, problem.rate, problem.div_yield):
         if solver.name == "direct":
             solver = ProjectedSOR()
             warnings.append(
                 "rate and yield both negative: the exercise region may not touch the grid end, "
                 "so projected SOR was used instead of the direct sweep"
             )
-    problem = PDEProblem(
-        option.is_put, american, t, market.rate, market.div_yield, market.vol,
-        math.log(market.spot / k),
-    )
     space_c, time_c, acc_name = _resolve_grid(problem, accuracy, grid)
     space_f = space_c.refined()
     time_f = time_c.refined()
@@ -302,10 +306,10 @@ def price(
     delta = rf.delta + (rf.delta - rc.delta) / 3.0
     gamma = rf.gamma + (rf.gamma - rc.gamma) / 3.0
     if rf.exercised:
-        value, delta, gamma = rf.value, rf.delta, rf.gamma
-    theta = theta_from_pde(
-        market.spot, value, delta, gamma, market.rate, market.div_yield, market.vol, rf.exercised
-    )
+        # exercised at once: the intrinsic value of the real spot (also under escrowed dividends)
+        value = max(k - market.spot, 0.0) if option.is_put else max(market.spot - k, 0.0)
+        delta, gamma = rf.delta, rf.gamma
+    theta = theta_at_valuation(problem, market.spot, k, value, delta, gamma, rf.exercised)
     err = abs(rf.value - rc.value) / 3.0
     boundary = ExerciseBoundary(fine.time.tau.copy(), k * np.exp(fine.report.boundary_x))
     stats = SolveStats(
