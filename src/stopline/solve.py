@@ -176,10 +176,13 @@ def _solve_with_dividends(
         if escrowed:
             # the exercise value just before an ex-date on the expiry includes that dividend
             if problem.american:
-                np.maximum(v, _shifted_payoff(space, problem.is_put, at_expiry), out=v)
+                _kernels.dividend_jump(
+                    v, space.x_min, space.h, 0.0, at_expiry, 1.0, 1.0, problem.is_put, True, work
+                )
+                v[:] = work
         else:
             _kernels.dividend_jump(
-                v, payoff, space.x_min, space.h, at_expiry, 1.0, 1.0, problem.is_put,
+                v, space.x_min, space.h, at_expiry, 0.0, 1.0, 1.0, problem.is_put,
                 problem.american, work,
             )
             v[:] = work
@@ -203,11 +206,14 @@ def _solve_with_dividends(
         if d is not None:
             if escrowed:
                 if problem.american:
-                    before = pv_after[last] + d
-                    np.maximum(v, _shifted_payoff(space, problem.is_put, before), out=v)
+                    _kernels.dividend_jump(
+                        v, space.x_min, space.h, 0.0, pv_after[last] + d, plan.df_r[last],
+                        plan.df_q[last], problem.is_put, True, work,
+                    )
+                    v[:] = work
             else:
                 _kernels.dividend_jump(
-                    v, payoff, space.x_min, space.h, d, plan.df_r[last], plan.df_q[last],
+                    v, space.x_min, space.h, d, 0.0, plan.df_r[last], plan.df_q[last],
                     problem.is_put, problem.american, work,
                 )
                 v[:] = work
