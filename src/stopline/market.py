@@ -169,7 +169,12 @@ def parse_dividends(text: str | None) -> list[Dividend]:
         try:
             when = float(when_s)
         except ValueError:
-            when = parse_date("dividends", when_s)
+            try:
+                when = parse_date("dividends", when_s)
+            except InputError:
+                raise InputError(
+                    "dividends", item, "ex-date must be a date YYYY-MM-DD or years from valuation"
+                ) from None
         if not math.isfinite(amount) or amount <= 0.0:
             raise InputError("dividends", item, "amount must be a finite number > 0")
         out.append((when, amount))

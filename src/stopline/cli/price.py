@@ -35,6 +35,11 @@ class Method(str, Enum):
     psor = "psor"
 
 
+class DividendModel(str, Enum):
+    spot = "spot"
+    escrowed = "escrowed"
+
+
 @guard
 def price_cmd(
     kind: Kind = typer.Option(..., "--kind", help="put or call."),
@@ -51,13 +56,26 @@ def price_cmd(
     accuracy: Accuracy = typer.Option(Accuracy.standard, "--accuracy", help="fast, standard or fine."),
     method: Method = typer.Option(Method.direct, "--method", help="direct (Brennan-Schwartz) or psor."),
     as_json: bool = typer.Option(False, "--json", help="Print one JSON object instead of a table."),
+    dividend: list[str] = typer.Option(
+        None, "--dividend",
+        help="Cash dividend EX_DATE_OR_YEARS:AMOUNT (e.g. 2027-03-15:0.42); repeat for more.",
+    ),
+    dividend_model: DividendModel = typer.Option(
+        DividendModel.spot, "--dividend-model",
+        help="spot (spot drops on the ex-date) or escrowed (spot less PV of dividends is lognormal).",
+    ),
 ) -> None:
     """Price one American or European option with its Greeks and error estimate."""
     from .. import Market, Option
+    from ..market import parse_dividends
     from ..pricing import price
 
     option = Option(kind.value, strike, parse_expiry(expiry), style=style.value)
-    market = Market(spot, rate, vol, div_yield=div_yield, valuation_date=valuation_date)
+    dividends = [d for text in dividend or () for d in parse_dividends(text)]
+    market = Market(
+        spot, rate, vol, div_yield=div_yield, valuation_date=valuation_date,
+        dividends=dividends, dividend_model=dividend_model.value,
+    )
     res = price(option, market, accuracy=accuracy.value, method=method.value)
     if as_json:
         typer.echo(json.dumps(result_record(res), indent=2))
@@ -78,6 +96,11 @@ def result_record(res) -> dict:  # noqa: ANN001 - Result, imported lazily
         "rate": mkt.rate,
         "div_yield": mkt.div_yield,
         "vol": mkt.vol,
+        "dividends": [
+            {"ex_date": w.isoformat() if hasattr(w, "isoformat") else w, "amount": a}
+            for w, a in mkt.dividends
+        ],
+        "dividend_model": mkt.dividend_model,
         "valuation_date": None if mkt.valuation_date is None else mkt.valuation_date.isoformat(),
         "price": res.price,
         "delta": res.delta,
@@ -107,6 +130,9 @@ def show_result(res) -> None:  # noqa: ANN001
     inputs.add_row("rate", f"{mkt.rate:.4%}")
     inputs.add_row("dividend yield", f"{mkt.div_yield:.4%}")
     inputs.add_row("volatility", f"{mkt.vol:.4%}")
+    for w, a in mkt.dividends:
+        when = w.isoformat() if hasattr(w, "isoformat") else f"{w:g}y"
+        inputs.add_row("cash dividend", f"{a:g} ex {when} ({mkt.dividend_model} model)")
     if mkt.valuation_date is not None:
         inputs.add_row("valuation date", mkt.valuation_date.isoformat())
     console.print(inputs)
