@@ -30,6 +30,7 @@ __all__ = [
     "locate_boundary",
     "thomas_repeat",
     "dividend_jump",
+    "value_after_drop",
 ]
 
 
@@ -364,7 +365,7 @@ def _held_or_exercised(v, x, x0, h, d, pv, df_r, df_q, is_put):
 
 
 @njit(cache=True)
-def dividend_jump(v, x0, h, d, pv, df_r, df_q, is_put, american, out):
+def dividend_jump(v, payoff, x0, h, d, pv, df_r, df_q, is_put, american, out):
     """Values just before an ex-dividend date from those just after.
 
     ``out_j = v(ln(max(e^{x_j} - d, 0)))`` (the spot drops by ``d``), and for an American
@@ -376,6 +377,9 @@ def dividend_jump(v, x0, h, d, pv, df_r, df_q, is_put, american, out):
     ----------
     v : ndarray, shape (n,)
         Value / strike after the ex-date (read only).
+    payoff : ndarray, shape (n,)
+        Exercise value / strike on the nodes at spot ``e^{x_j} + pv`` (American only; the
+        nodes take it exactly, so that the exercise region is found by equality).
     x0, h : float
         First node and spacing of the uniform log-moneyness grid.
     d : float
@@ -392,44 +396,62 @@ def dividend_jump(v, x0, h, d, pv, df_r, df_q, is_put, american, out):
     Notes
     -----
     Where the exercise value overtakes the held value inside a node's cell
-    ``[x_j - h/2, x_j + h/2]``, the value there has a kink off the grid; the node then takes
-    the cell average (the kink located by bisection, two-point Gauss on each side), which
+    ``[x_j - h/2, x_j + h/2]``, or the dropped spot reaches zero there (``e^x = d``), the
+    value has a kink off the grid; the node then takes the cell average (the kink located by
+    bisection, two-point Gauss on each side), which
     keeps the error a smooth function of the spacing so that Richardson extrapolation still
     works (Pooley, Vetzal and Forsyth 2003, J. Comput. Finance 6(4)).
     """
     n = v.shape[0]
     half = 0.5 * h
     g = 0.5 / math.sqrt(3.0)
+    x_zero = math.log(d) if d > 0.0 else -math.inf  # the dropped spot reaches zero here
     for j in range(n):
         xj = x0 + j * h
-        w = _value_after(v, xj, x0, h, d, df_r, df_q, is_put, american)
-        if not american:
-            out[j] = w
-            continue
         xl = xj - half
         xr = xj + half
-        gl = _value_after(v, xl, x0, h, d, df_r, df_q, is_put, True) - _exercise_value(xl, pv, is_put)
-        gr = _value_after(v, xr, x0, h, d, df_r, df_q, is_put, True) - _exercise_value(xr, pv, is_put)
-        if gl * gr >= 0.0:
-            e = _exercise_value(xj, pv, is_put)
+        w = _value_after(v, xj, x0, h, d, df_r, df_q, is_put, american)
+        e = payoff[j] if american else 0.0
+        xk = math.nan
+        if american:
+            gl = _value_after(v, xl, x0, h, d, df_r, df_q, is_put, True) - _exercise_value(xl, pv, is_put)
+            gr = _value_after(v, xr, x0, h, d, df_r, df_q, is_put, True) - _exercise_value(xr, pv, is_put)
+            if gl * gr < 0.0:
+                a = xl
+                b = xr
+                for _ in range(40):
+                    m = 0.5 * (a + b)
+                    gm = _value_after(v, m, x0, h, d, df_r, df_q, is_put, True) - _exercise_value(
+                        m, pv, is_put
+                    )
+                    if (gm < 0.0) == (gl < 0.0):
+                        a = m
+                    else:
+                        b = m
+                xk = 0.5 * (a + b)
+        if math.isnan(xk) and xl < x_zero < xr:
+            xk = x_zero
+        if math.isnan(xk):
             out[j] = w if w > e else e
             continue
-        a = xl
-        b = xr
-        for _ in range(40):
-            m = 0.5 * (a + b)
-            gm = _value_after(v, m, x0, h, d, df_r, df_q, is_put, True) - _exercise_value(m, pv, is_put)
-            if (gm < 0.0) == (gl < 0.0):
-                a = m
-            else:
-                b = m
-        xk = 0.5 * (a + b)
         total = 0.0
         for lo, hi in ((xl, xk), (xk, xr)):
             c = 0.5 * (lo + hi)
             ln = hi - lo
-            total += 0.5 * ln * (
-                _held_or_exercised(v, c - g * ln, x0, h, d, pv, df_r, df_q, is_put)
-                + _held_or_exercised(v, c + g * ln, x0, h, d, pv, df_r, df_q, is_put)
-            )
+            for z in (c - g * ln, c + g * ln):
+                if american:
+                    total += 0.5 * ln * _held_or_exercised(v, z, x0, h, d, pv, df_r, df_q, is_put)
+                else:
+                    total += 0.5 * ln * _value_after(v, z, x0, h, d, df_r, df_q, is_put, False)
         out[j] = total / h
+
+
+@njit(cache=True)
+def value_after_drop(v, x0, h, d, df_r, df_q, is_put, american, out):
+    """``out_j = v(ln(max(e^{x_j} - d, 0)))``: the held value just before an ex-date.
+
+    As :func:`dividend_jump` without the exercise floor and without cell averaging; the
+    American flag only sets the far-field value below the grid.
+    """
+    for j in range(v.shape[0]):
+        out[j] = _value_after(v, x0 + j * h, x0, h, d, df_r, df_q, is_put, american)

@@ -311,7 +311,7 @@ def price(
         delta, gamma = rf.delta, rf.gamma
     theta = theta_at_valuation(problem, market.spot, k, value, delta, gamma, rf.exercised)
     err = abs(rf.value - rc.value) / 3.0
-    boundary = ExerciseBoundary(fine.time.tau.copy(), k * np.exp(fine.report.boundary_x))
+    boundary = ExerciseBoundary(fine.boundary_times.copy(), k * np.exp(fine.report.boundary_x))
     stats = SolveStats(
         space_points=space_f.n,
         time_levels=time_f.levels,

@@ -8,7 +8,7 @@ come from the curves (:func:`stopline.operator.plan_steps`).
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -110,6 +110,9 @@ class GridSolution:
         Exercise value / strike on every node.
     report : MarchReport
         Boundary per step and iteration counts.
+    boundary_tau : ndarray, optional
+        Times of the boundary entries when they are not one per step (see
+        :attr:`boundary_times`).
     """
 
     space: SpaceGrid
@@ -117,6 +120,16 @@ class GridSolution:
     values: FloatArray
     payoff: FloatArray
     report: MarchReport
+    boundary_tau: FloatArray | None = None
+
+    @property
+    def boundary_times(self) -> FloatArray:
+        """Time to expiry of each entry of ``report.boundary_x``, non-decreasing.
+
+        One per step; with dividends, each ex-date appears twice: the state just after it
+        (from the step that ends there) and then the state just before it.
+        """
+        return self.time.tau if self.boundary_tau is None else self.boundary_tau
 
 
 def payoff_on(space: SpaceGrid, is_put: bool) -> FloatArray:
@@ -170,70 +183,145 @@ def _solve_with_dividends(
             raise ValueError(f"no time level on the ex-date (tau={t_d!r}); use time_grid_for")
         events[k] = events.get(k, 0.0) + d
     escrowed = problem.escrowed
-    pv_after = _escrow_pv_per_step(problem, plan) if escrowed else None
+    pv_after = _dividends_ahead(problem, plan, to_expiry=False) if escrowed else None
+    if not escrowed:
+        # Far field of the spot model: the discounted forward is lowered by the dividends
+        # ahead, so the European asymptote K e^{-r tau} - S e^{-q tau} gains their value
+        # (kept below K e^{-r tau} for a put, whose stock cannot fall below zero).
+        adj = _dividends_ahead(problem, plan, to_expiry=True)
+        if problem.is_put:
+            adj = np.minimum(adj, np.exp(space.x_min) * plan.df_q)
+        plan = replace(plan, df_r=plan.df_r + adj)
     work = np.empty_like(v)
     if at_expiry > 0.0:
         if escrowed:
             # the exercise value just before an ex-date on the expiry includes that dividend
             if problem.american:
+                ex = _shifted_payoff(space, problem.is_put, at_expiry)
                 _kernels.dividend_jump(
-                    v, space.x_min, space.h, 0.0, at_expiry, 1.0, 1.0, problem.is_put, True, work
+                    v, ex, space.x_min, space.h, 0.0, at_expiry, 1.0, 1.0, problem.is_put, True,
+                    work,
                 )
                 v[:] = work
         else:
             _kernels.dividend_jump(
-                v, space.x_min, space.h, at_expiry, 0.0, 1.0, 1.0, problem.is_put,
+                v, payoff, space.x_min, space.h, at_expiry, 0.0, 1.0, 1.0, problem.is_put,
                 problem.american, work,
             )
             v[:] = work
     stops = sorted(set(events) | {tau.shape[0] - 1})
     parts: list[MarchReport] = []
+    # boundary per step, plus one entry at each ex-date for the state just before it
+    b_tau: list[FloatArray] = []
+    b_x: list[FloatArray] = []
+    b_pv: list[FloatArray] = []
     start = 0
-    step_payoff = payoff
     for last in stops:
         if escrowed and problem.american:
             for k in range(start, last + 1):
                 step_payoff = _shifted_payoff(space, problem.is_put, pv_after[k])
-                parts.append(
-                    method.march(v, step_payoff, space, plan.part(k, k + 1), problem.is_put, True)
-                )
+                step = plan.part(k, k + 1)
+                if not problem.is_put:
+                    # far field of a call on S* + PV: S* + PV - K e^{-r tau}, above exercise
+                    step = replace(step, df_r=step.df_r - pv_after[k])
+                parts.append(method.march(v, step_payoff, space, step, problem.is_put, True))
+                if problem.is_put:
+                    # the march's far-field floor K - S* sits above the exercise value
+                    # K - S* - PV, so the exercise region can start a few nodes in
+                    b_x.append(np.array([_last_exercised(v, step_payoff, space, True)]))
+                else:
+                    b_x.append(parts[-1].boundary_x)
         else:
             parts.append(
                 method.march(v, payoff, space, plan.part(start, last + 1), problem.is_put,
                              problem.american)
             )
+            b_x.append(parts[-1].boundary_x)
+        b_tau.append(tau[start:last + 1])
+        b_pv.append(pv_after[start:last + 1] if escrowed else np.zeros(last + 1 - start))
         d = events.get(last)
         if d is not None:
-            if escrowed:
-                if problem.american:
-                    _kernels.dividend_jump(
-                        v, space.x_min, space.h, 0.0, pv_after[last] + d, plan.df_r[last],
-                        plan.df_q[last], problem.is_put, True, work,
-                    )
-                    v[:] = work
-            else:
+            pv_before = pv_after[last] + d if escrowed else 0.0
+            ex = _shifted_payoff(space, problem.is_put, pv_before) if escrowed else payoff
+            held_from = v.copy()
+            if not escrowed or problem.american:
                 _kernels.dividend_jump(
-                    v, space.x_min, space.h, d, 0.0, plan.df_r[last], plan.df_q[last],
-                    problem.is_put, problem.american, work,
+                    v, ex, space.x_min, space.h, 0.0 if escrowed else d, pv_before,
+                    plan.df_r[last], plan.df_q[last], problem.is_put, problem.american, work,
                 )
                 v[:] = work
+            if problem.american:
+                held = np.empty_like(v)
+                _kernels.value_after_drop(
+                    held_from, space.x_min, space.h, 0.0 if escrowed else d, plan.df_r[last],
+                    plan.df_q[last], problem.is_put, True, held,
+                )
+                bx = _crossing(held - ex, ex, space, problem.is_put)
+            else:
+                bx = math.nan
+            b_tau.append(np.array([tau[last]]))
+            b_x.append(np.array([bx]))
+            b_pv.append(np.array([pv_before]))
         start = last + 1
-    bnd = np.concatenate([p.boundary_x for p in parts])
+    bnd = np.concatenate(b_x)
     if escrowed:
         # report the critical spot itself: S = S* + PV_t(D)
         with np.errstate(invalid="ignore"):
-            bnd = np.log(np.exp(bnd) + pv_after)
-        if problem.american:
-            step_payoff = _shifted_payoff(space, problem.is_put, problem.escrow_pv)
-        else:
-            step_payoff = payoff
+            bnd = np.log(np.exp(bnd) + np.concatenate(b_pv))
+    final_payoff = payoff
+    if escrowed and problem.american:
+        final_payoff = _shifted_payoff(space, problem.is_put, problem.escrow_pv)
     report = MarchReport(
         bnd,
         int(sum(p.iterations for p in parts)),
         int(max(p.max_iterations for p in parts)),
         parts[-1].omega,
     )
-    return GridSolution(space, time, v, step_payoff, report)
+    return GridSolution(space, time, v, final_payoff, report, np.concatenate(b_tau))
+
+
+def _last_exercised(v: FloatArray, payoff: FloatArray, space: SpaceGrid, is_put: bool) -> float:
+    """Critical log-moneyness from the exercised node farthest into the holding region.
+
+    Like :func:`stopline._kernels.locate_boundary` (root of the line through the square roots
+    of the first two positive gaps, which grow like ``(x - x*)^2`` by smooth pasting), but
+    not requiring the exercise region to start at the grid end.
+    """
+    n = v.shape[0]
+    ex = np.flatnonzero((v <= payoff) & (payoff > 0.0))
+    if ex.size == 0:
+        return math.nan
+    j = int(ex[-1]) if is_put else int(ex[0])
+    step = 1 if is_put else -1
+    if not 1 <= j + 2 * step <= n - 2:
+        return math.nan
+    s1 = math.sqrt(max(v[j + step] - payoff[j + step], 0.0))
+    s2 = math.sqrt(max(v[j + 2 * step] - payoff[j + 2 * step], 0.0))
+    x_next = space.x_min + (j + step) * space.h
+    if s2 <= s1:
+        return x_next - step * space.h
+    frac = min(s1 / (s2 - s1), 1.0)
+    return x_next - frac * step * space.h
+
+
+def _crossing(gap: FloatArray, exercise: FloatArray, space: SpaceGrid, is_put: bool) -> float:
+    """Where held minus exercise value changes sign at the in-the-money end, or NaN.
+
+    Just before an ex-date the exercise value crosses the held value at an angle (no smooth
+    pasting there), so the crossing is placed by linear interpolation of the gap.
+    """
+    n = gap.shape[0]
+    idx = range(1, n - 1) if is_put else range(n - 2, 0, -1)
+    prev = -1
+    for j in idx:
+        if not (gap[j] <= 0.0 and exercise[j] > 0.0):
+            if prev < 0:
+                return math.nan
+            g0, g1 = gap[prev], gap[j]
+            frac = g0 / (g0 - g1) if g0 != g1 else 0.0
+            return float(space.x_min + (prev + (j - prev) * frac) * space.h)
+        prev = j
+    return math.nan
 
 
 def _shifted_payoff(space: SpaceGrid, is_put: bool, pv: float) -> FloatArray:
@@ -244,21 +332,32 @@ def _shifted_payoff(space: SpaceGrid, is_put: bool, pv: float) -> FloatArray:
     return out
 
 
-def _escrow_pv_per_step(problem: PDEProblem, plan: StepPlan) -> FloatArray:
-    """PV / strike, at the end of each step, of the dividends still to come after it."""
-    rate = problem.coefficients[0]
+def _dividends_ahead(problem: PDEProblem, plan: StepPlan, *, to_expiry: bool) -> FloatArray:
+    """Per step: the dividends / strike still to come after its end, discounted to it.
+
+    Each dividend is discounted at the rate from its ex-date back to the step's end; with
+    ``to_expiry`` also at the yield from expiry back to the ex-date (the amount by which
+    the dividend lowers the discounted forward ``S e^{-int q}`` of the spot model).
+    """
+    rate, q = problem.coefficients[0], problem.coefficients[1]
     expiry = problem.expiry
     out = np.zeros_like(plan.tau)
     for t_d, d in zip(problem.dividend_tau, problem.dividend_amount, strict=True):
         ahead = plan.tau > t_d * (1.0 + 1e-12) + 1e-14
-        t_now = expiry - plan.tau[ahead]
+        t_now = np.maximum(expiry - plan.tau[ahead], 0.0)
         t_ex = expiry - t_d
-        if isinstance(rate, PiecewiseConstant):
-            grow = rate.cumulative(np.full_like(t_now, t_ex)) - rate.cumulative(np.maximum(t_now, 0.0))
-        else:
-            grow = float(rate) * (t_ex - t_now)
+        grow = _integral(rate, t_now, t_ex)
+        if to_expiry:
+            grow = grow + _integral(q, np.full_like(t_now, t_ex), expiry)
         out[ahead] += d * np.exp(-grow)
     return out
+
+
+def _integral(curve: Curve, t0: FloatArray, t1: float) -> FloatArray:
+    """``int_{t0}^{t1} c(t) dt`` for each entry of ``t0``."""
+    if isinstance(curve, PiecewiseConstant):
+        return curve.cumulative(np.full_like(t0, t1)) - curve.cumulative(t0)
+    return float(curve) * (t1 - t0)
 
 
 def problem_from_market(option: Option, market: Market, expiry: float) -> PDEProblem:
