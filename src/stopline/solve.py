@@ -103,13 +103,16 @@ class GridSolution:
     Attributes
     ----------
     space, time : SpaceGrid, TimeGrid
-        The grids solved on.
+        The grids solved on (in frame ``space.frame``).
     values : ndarray, shape (space.n,)
         Value / strike at valuation on every node.
     payoff : ndarray, shape (space.n,)
-        Exercise value / strike on every node.
+        Exercise value / strike on every node at valuation.
+    drift : float
+        ``M(T)`` in frame "y", 0 in frame "x": at valuation a node at ``y`` stands for the
+        log-moneyness ``x = y - drift``.
     report : MarchReport
-        Boundary per step and iteration counts.
+        Boundary per step (in log-moneyness) and iteration counts.
     boundary_tau : ndarray, optional
         Times of the boundary entries when they are not one per step (see
         :attr:`boundary_times`).
@@ -119,6 +122,7 @@ class GridSolution:
     time: TimeGrid
     values: FloatArray
     payoff: FloatArray
+    drift: float
     report: MarchReport
     boundary_tau: FloatArray | None = None
 
@@ -131,13 +135,23 @@ class GridSolution:
         """
         return self.time.tau if self.boundary_tau is None else self.boundary_tau
 
+    @property
+    def x_min(self) -> float:
+        """Log-moneyness of the first node at valuation."""
+        return self.space.x_min - self.drift
 
-def payoff_on(space: SpaceGrid, is_put: bool) -> FloatArray:
-    """Exercise value / strike on the nodes: ``max(1 - e^x, 0)`` or ``max(e^x - 1, 0)``."""
-    s = np.exp(space.x)
-    out = 1.0 - s if is_put else s - 1.0
-    np.maximum(out, 0.0, out=out)
-    out[space.strike_index] = 0.0
+    @property
+    def x(self) -> FloatArray:
+        """Log-moneyness of every node at valuation, shape (space.n,)."""
+        return self.space.x - self.drift
+
+
+def payoff_on(space: SpaceGrid, is_put: bool, shift: float = 1.0) -> FloatArray:
+    """Exercise value / strike on the nodes at a level where ``S / K = e^y shift``."""
+    out = np.empty(space.n)
+    _kernels.obstacle(np.exp(space.x), shift, is_put, out)
+    if shift == 1.0 and space.has_strike:
+        out[space.strike_index] = 0.0
     return out
 
 
@@ -151,19 +165,22 @@ def solve(
     problem : PDEProblem
         What to solve.
     space, time : SpaceGrid, TimeGrid
-        The grid; with dividends, a time grid with a level on every ex-date
+        The grid (``space.frame`` says which frame, see :mod:`stopline.operator`); with
+        dividends, frame "x" and a time grid with a level on every ex-date
         (:func:`time_grid_for`).
     method : DirectSweep or ProjectedSOR
         Solver of the exercise constraint (also used for European options, where it is a
         plain linear solve).
     """
-    payoff = payoff_on(space, problem.is_put)
-    plan = plan_steps(time, space.h, *problem.coefficients)
-    v = payoff.copy()
+    plan = plan_steps(time, space.h, *problem.coefficients, space.frame)
+    v = payoff_on(space, problem.is_put)
     if not problem.dividend_tau:
-        report = method.march(v, payoff, space, plan, problem.is_put, problem.american)
-        return GridSolution(space, time, v, payoff, report)
-    return _solve_with_dividends(problem, space, time, plan, method, payoff, v)
+        report = method.march(v, np.exp(space.x), space, plan, problem.is_put, problem.american)
+        payoff = payoff_on(space, problem.is_put, float(plan.shift[-1]))
+        return GridSolution(space, time, v, payoff, plan.drift, report)
+    if space.frame != "x":
+        raise ValueError("cash dividends are solved in frame 'x'")
+    return _solve_with_dividends(problem, space, time, plan, method, v.copy(), v)
 
 
 def _solve_with_dividends(
@@ -172,6 +189,7 @@ def _solve_with_dividends(
 ) -> GridSolution:
     """March segment by segment, applying each dividend at its ex-date level."""
     tau = time.tau
+    ex_nodes = np.exp(space.x)
     events: dict[int, float] = {}
     at_expiry = 0.0
     for t_d, d in zip(problem.dividend_tau, problem.dividend_amount, strict=True):
@@ -219,21 +237,15 @@ def _solve_with_dividends(
     for last in stops:
         if escrowed and problem.american:
             for k in range(start, last + 1):
-                step_payoff = _shifted_payoff(space, problem.is_put, pv_after[k])
-                step = plan.part(k, k + 1)
-                if not problem.is_put:
-                    # far field of a call on S* + PV: S* + PV - K e^{-r tau}, above exercise
-                    step = replace(step, df_r=step.df_r - pv_after[k])
-                parts.append(method.march(v, step_payoff, space, step, problem.is_put, True))
-                if problem.is_put:
-                    # the march's far-field floor K - S* sits above the exercise value
-                    # K - S* - PV, so the exercise region can start a few nodes in
-                    b_x.append(np.array([_last_exercised(v, step_payoff, space, True)]))
-                else:
-                    b_x.append(parts[-1].boundary_x)
+                # the march takes the spot on each node as e^x: here S*/K + PV/K, which sets
+                # the exercise value and the far-field values of the spot itself
+                parts.append(method.march(
+                    v, ex_nodes + pv_after[k], space, plan.part(k, k + 1), problem.is_put, True
+                ))
+                b_x.append(parts[-1].boundary_x)
         else:
             parts.append(
-                method.march(v, payoff, space, plan.part(start, last + 1), problem.is_put,
+                method.march(v, ex_nodes, space, plan.part(start, last + 1), problem.is_put,
                              problem.american)
             )
             b_x.append(parts[-1].boundary_x)
@@ -277,31 +289,7 @@ def _solve_with_dividends(
         int(max(p.max_iterations for p in parts)),
         parts[-1].omega,
     )
-    return GridSolution(space, time, v, final_payoff, report, np.concatenate(b_tau))
-
-
-def _last_exercised(v: FloatArray, payoff: FloatArray, space: SpaceGrid, is_put: bool) -> float:
-    """Critical log-moneyness from the exercised node farthest into the holding region.
-
-    Like :func:`stopline._kernels.locate_boundary` (root of the line through the square roots
-    of the first two positive gaps, which grow like ``(x - x*)^2`` by smooth pasting), but
-    not requiring the exercise region to start at the grid end.
-    """
-    n = v.shape[0]
-    ex = np.flatnonzero((v <= payoff) & (payoff > 0.0))
-    if ex.size == 0:
-        return math.nan
-    j = int(ex[-1]) if is_put else int(ex[0])
-    step = 1 if is_put else -1
-    if not 1 <= j + 2 * step <= n - 2:
-        return math.nan
-    s1 = math.sqrt(max(v[j + step] - payoff[j + step], 0.0))
-    s2 = math.sqrt(max(v[j + 2 * step] - payoff[j + 2 * step], 0.0))
-    x_next = space.x_min + (j + step) * space.h
-    if s2 <= s1:
-        return x_next - step * space.h
-    frac = min(s1 / (s2 - s1), 1.0)
-    return x_next - frac * step * space.h
+    return GridSolution(space, time, v, final_payoff, 0.0, report, np.concatenate(b_tau))
 
 
 def _crossing(gap: FloatArray, exercise: FloatArray, space: SpaceGrid, is_put: bool) -> float:
