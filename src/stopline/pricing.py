@@ -223,7 +223,7 @@ def _resolve_grid(
         }
     space = build_space_grid(problem.x_spot, sd, drift, width_sd=width, **kwargs)
     # cash dividends are applied in frame "x" (the dropped spot of a node is a fixed node)
-    if choose_frame(sd, drift, space.h, problem.vol, mu) == "y" and not problem.dividend_tau:
+    if choose_frame(sd, drift, space.h, problem.vol, mu) == "y" and not problem.has_events:
         space = build_space_grid(problem.x_spot, sd, drift, width_sd=width, frame="y", **kwargs)
         if problem.american:
             # steps short enough that the exercise value's kink moves about a node per step

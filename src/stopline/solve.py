@@ -95,6 +95,12 @@ class PDEProblem:
         """True when dividends are modelled as escrowed."""
         return self.dividend_model == "escrowed" and bool(self.dividend_tau)
 
+    @property
+    def has_events(self) -> bool:
+        """True when the march must stop at ex-dates (all but escrowed European options,
+        which are Black-Scholes on ``S - PV(D)`` and need only the shifted spot)."""
+        return bool(self.dividend_tau) and not (self.escrowed and not self.american)
+
 
 @dataclass(frozen=True)
 class GridSolution:
@@ -174,7 +180,7 @@ def solve(
     """
     plan = plan_steps(time, space.h, *problem.coefficients, space.frame)
     v = payoff_on(space, problem.is_put)
-    if not problem.dividend_tau:
+    if not problem.has_events:
         report = method.march(v, np.exp(space.x), space, plan, problem.is_put, problem.american)
         payoff = payoff_on(space, problem.is_put, float(plan.shift[-1]))
         return GridSolution(space, time, v, payoff, plan.drift, report)
@@ -393,7 +399,8 @@ def time_grid_for(problem: PDEProblem, levels: int) -> TimeGrid:
     """
     expiry = problem.expiry
     ends: dict[float, bool] = {}
-    for t_d in problem.dividend_tau:
+    ex_dates = problem.dividend_tau if problem.has_events else ()
+    for t_d in ex_dates:
         if 1e-12 < t_d < expiry * (1.0 - 1e-12):
             ends[t_d] = True
     if problem.curves is not None:
@@ -408,7 +415,7 @@ def time_grid_for(problem: PDEProblem, levels: int) -> TimeGrid:
     bounds = tuple(sorted(ends)) + (expiry,)
     # segment i runs from bounds[i-1] to bounds[i]; it restarts if its start is an ex-date
     restart = (True,) + tuple(ends[b] for b in bounds[:-1])
-    return build_segmented_time_grid(bounds, restart, split_levels(bounds, levels))
+    return build_segmented_time_grid(bounds, restart, split_levels(bounds, levels, restart))
 
 
 def theta_at_valuation(
