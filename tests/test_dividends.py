@@ -358,3 +358,13 @@ def test_escrowed_european_with_a_rate_curve() -> None:
                 Market(s, rate, v, dividends=divs, dividend_model="escrowed"))
     ex = bsm("call", s - pv, k, t, rate.average(t), 0.0, v)["price"]
     assert res.price == pytest.approx(ex, abs=1e-6 * k)
+
+
+def test_ex_date_on_the_valuation_date_is_taken_as_paid() -> None:
+    # Convention (common practice): a spot quoted on its ex-date is already ex-dividend.
+    opt = Option("call", 100.0, "2027-06-01")
+    base = price(opt, Market(100.0, 0.05, 0.25, valuation_date="2026-12-01"))
+    res = price(opt, Market(100.0, 0.05, 0.25, valuation_date="2026-12-01",
+                            dividends=[("2026-12-01", 2.0)]))
+    assert res.price == base.price
+    assert any("already ex-dividend" in w for w in res.stats.warnings)

@@ -93,9 +93,9 @@ def result_record(res) -> dict:  # noqa: ANN001 - Result, imported lazily
         "strike": opt.strike,
         "expiry": opt.expiry if isinstance(opt.expiry, float) else opt.expiry.isoformat(),
         "time_to_expiry": res.time_to_expiry,
-        "rate": mkt.rate,
-        "div_yield": mkt.div_yield,
-        "vol": mkt.vol,
+        "rate": _curve_record(mkt.rate),
+        "div_yield": _curve_record(mkt.div_yield),
+        "vol": _curve_record(mkt.vol),
         "dividends": [
             {"ex_date": w.isoformat() if hasattr(w, "isoformat") else w, "amount": a}
             for w, a in mkt.dividends
@@ -118,6 +118,22 @@ def result_record(res) -> dict:  # noqa: ANN001 - Result, imported lazily
     }
 
 
+def _curve_record(value):  # noqa: ANN001, ANN202 - float or PiecewiseConstant
+    """A flat number as is; a term structure as its times and values."""
+    if hasattr(value, "times"):
+        return {"times": list(value.times), "values": list(value.values)}
+    return value
+
+
+def _curve_text(value) -> str:  # noqa: ANN001 - float or PiecewiseConstant
+    """``4.0000%``, or ``4.0000% to 0.5y, 4.5000% after`` for a term structure."""
+    if not hasattr(value, "times"):
+        return f"{value:.4%}"
+    parts = [f"{v:.4%} to {t:g}y" for t, v in zip(value.times, value.values, strict=True)]
+    return ", ".join(parts[:-1] + [f"{value.values[-1]:.4%} after {value.times[-2]:g}y"]) if len(
+        parts) > 1 else f"{value.values[0]:.4%}"
+
+
 def show_result(res) -> None:  # noqa: ANN001
     """Print a result for a person: what was priced, the answer, how it was computed."""
     console = Console()
@@ -127,9 +143,9 @@ def show_result(res) -> None:  # noqa: ANN001
     inputs.add_column(style="dim")
     inputs.add_column(justify="right")
     inputs.add_row("spot", f"{mkt.spot:g}")
-    inputs.add_row("rate", f"{mkt.rate:.4%}")
-    inputs.add_row("dividend yield", f"{mkt.div_yield:.4%}")
-    inputs.add_row("volatility", f"{mkt.vol:.4%}")
+    inputs.add_row("rate", _curve_text(mkt.rate))
+    inputs.add_row("dividend yield", _curve_text(mkt.div_yield))
+    inputs.add_row("volatility", _curve_text(mkt.vol))
     for w, a in mkt.dividends:
         when = w.isoformat() if hasattr(w, "isoformat") else f"{w:g}y"
         inputs.add_row("cash dividend", f"{a:g} ex {when} ({mkt.dividend_model} model)")
