@@ -127,3 +127,18 @@ def test_theta_uses_the_instantaneous_coefficients() -> None:
     eps = 1e-5
     theta = (value_from(eps) - value_from(0.0)) / eps
     assert res.theta == pytest.approx(theta, rel=2e-3)
+
+
+@pytest.mark.parametrize("s", [100.0, 140.0])
+def test_low_vol_curves_in_the_drift_free_frame(s: float) -> None:
+    # Exact identity (Merton 1973) as above, at a vol so low for the drift that the grid moves
+    # with the forward (frame "y"), whose shift is the integral of the curves' drift.
+    rate = PiecewiseConstant([1.0, 3.0, 5.0], [0.06, 0.08, 0.09])
+    vol = PiecewiseConstant([2.0, 5.0], [0.02, 0.03])
+    res = price(Option("call", 100.0, 5.0, "european"), Market(s, rate, vol))
+    ex = bsm("call", s, 100.0, 5.0, rate.average(5.0), 0.0, vol.rms(5.0))
+    assert res.price == pytest.approx(ex["price"], abs=1e-6 * 100.0)
+    p = problem_from_market(Option("call", 100.0, 5.0, "european"), Market(s, rate, vol), 5.0)
+    from stopline.pricing import _resolve_grid
+
+    assert _resolve_grid(p, "standard", None)[0].frame == "y"

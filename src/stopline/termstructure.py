@@ -9,6 +9,11 @@ For a European option under piecewise-constant (or any deterministic) coefficien
 Black-Scholes-Merton formula holds with the averaged rate and yield and the root-mean-square
 volatility over the option's life (Merton 1973); :meth:`PiecewiseConstant.average` and
 :meth:`PiecewiseConstant.rms` give those.
+
+References
+----------
+Merton, R. C. (1973), Theory of rational option pricing, Bell Journal of Economics and
+Management Science 4(1) (Black-Scholes with deterministic time-dependent coefficients).
 """
 
 from __future__ import annotations
