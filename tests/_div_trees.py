@@ -108,3 +108,40 @@ def spot_drop_tree(kind: str, s: float, k: float, t: float, r: float, vol: float
         if american:
             v = np.maximum(v, sign * (spot - k))
     return float(v[0])
+
+
+def equal_variance_tree(kind: str, s: float, k: float, r: float, q: float, pieces: list[tuple[float, float, int]], *, american: bool = True) -> float:
+    """CRR tree under piecewise-constant vol and rate: steps of equal variance.
+
+    ``pieces`` lists ``(length in years, vol, steps)`` from valuation on; the steps must make
+    ``vol^2 * length / steps`` the same for every piece, so that one up factor serves the
+    whole tree and it recombines (common practice). ``r`` is a list of rates per piece.
+    The last step is the Black-Scholes value (BBS).
+    """
+    var = pieces[0][1] ** 2 * pieces[0][0] / pieces[0][2]
+    for length, vol, n in pieces:
+        if abs(vol * vol * length / n - var) > 1e-14:
+            raise ValueError("pieces must have equal variance per step")
+    u = math.exp(math.sqrt(var))
+    steps = []  # (dt, rate, vol) of every step from valuation
+    for (length, vol, n), rate in zip(pieces, r, strict=True):
+        steps += [(length / n, rate, vol)] * n
+    sign = 1.0 if kind == "call" else -1.0
+    n_all = len(steps)
+    v = None
+    for i in range(n_all - 1, -1, -1):
+        dt, rate, vol = steps[i]
+        j = np.arange(i + 1)
+        spot = s * u ** (2.0 * j - i)
+        if i == n_all - 1:
+            sq = vol * math.sqrt(dt)
+            d1 = (np.log(spot / k) + (rate - q + 0.5 * vol * vol) * dt) / sq
+            d2 = d1 - sq
+            v = sign * (spot * math.exp(-q * dt) * norm.cdf(sign * d1)
+                        - k * math.exp(-rate * dt) * norm.cdf(sign * d2))
+        else:
+            p = (math.exp((rate - q) * dt) - 1 / u) / (u - 1 / u)
+            v = math.exp(-rate * dt) * (p * v[1:] + (1 - p) * v[:-1])
+        if american:
+            v = np.maximum(v, sign * (spot - k))
+    return float(v[0])
