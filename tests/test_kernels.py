@@ -79,7 +79,7 @@ def test_march_direct_matches_numpy_twin(small_case, is_put: bool, american: boo
     v = payoff.copy()
     bnd = np.empty(plan.dt.size)
     _kernels.march_direct(v, np.exp(space.x), space.x_min, space.h, plan.dt, plan.theta, plan.lo,
-                          plan.di, plan.up, plan.df_r, plan.df_q, plan.shift, is_put, american, bnd)
+                          plan.di, plan.up, plan.df_r, plan.df_q, plan.shift, plan.scale, is_put, american, bnd)
     twin = _twin_march(payoff, space.x_min, space.h, plan, is_put, american)
     np.testing.assert_allclose(v, twin, rtol=0, atol=1e-12)
 
@@ -93,7 +93,7 @@ def test_march_psor_matches_direct_kernel_and_twin(small_case, is_put: bool) -> 
     bnd = np.empty(plan.dt.size)
     iters = np.zeros(plan.dt.size, dtype=np.int64)
     failed = _kernels.march_psor(v, np.exp(space.x), space.x_min, space.h, plan.dt, plan.theta,
-                                 plan.lo, plan.di, plan.up, plan.df_r, plan.df_q, plan.shift,
+                                 plan.lo, plan.di, plan.up, plan.df_r, plan.df_q, plan.shift, plan.scale,
                                  is_put, True, bnd, -1.0, 1e-14, 100000, iters)
     assert failed == -1 and iters.min() >= 1
     twin = _twin_march(payoff, space.x_min, space.h, plan, is_put, True)

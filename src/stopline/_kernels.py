@@ -128,7 +128,9 @@ def locate_boundary(v, payoff, x0, h, is_put):
 
 
 @njit(cache=True)
-def march_direct(v, ex, x0, h, dt, theta, lo, di, up, df_r, df_q, shift, is_put, american, bnd):
+def march_direct(
+    v, ex, x0, h, dt, theta, lo, di, up, df_r, df_q, shift, scale, is_put, american, bnd
+):
     """March ``v`` through all steps with the Brennan-Schwartz direct sweep.
 
     Parameters
@@ -139,10 +141,12 @@ def march_direct(v, ex, x0, h, dt, theta, lo, di, up, df_r, df_q, shift, is_put,
         ``e^{y_j}`` on the nodes.
     x0, h : float
         First node and spacing of the uniform grid in ``y``.
-    dt, theta, lo, di, up, df_r, df_q, shift : ndarray, shape (n_steps,)
+    dt, theta, lo, di, up, df_r, df_q, shift, scale : ndarray, shape (n_steps,)
         Per step: length, implicitness (1 fully implicit, 0.5 Crank-Nicolson), operator
         coefficients, the discount factors for rate and yield from expiry to the new level
-        (for the far-field values), and ``e^{-M(tau)}`` at the new level.
+        (for the far-field values), ``e^{-M(tau)}`` at the new level, and the factor by which
+        ``v`` is scaled at the new level (``1 / df_r`` when the operator leaves out the
+        discounting term, 1 otherwise): the exercise and far-field values are scaled alike.
     is_put, american : bool
         Contract flags. For a European option the sweep is a plain Thomas solve.
     bnd : ndarray, shape (n_steps,)
@@ -167,8 +171,13 @@ def march_direct(v, ex, x0, h, dt, theta, lo, di, up, df_r, df_q, shift, is_put,
         d = di[k]
         u = up[k]
         vl, vh = far_values(ex[0] * sk, ex[n - 1] * sk, df_r[k], df_q[k], is_put, american)
+        vl *= scale[k]
+        vh *= scale[k]
         if american:
             obstacle(ex, sk, is_put, payoff)
+            if scale[k] != 1.0:
+                for j in range(n):
+                    payoff[j] *= scale[k]
         el = ae * lk
         ed = 1.0 + ae * d
         eu = ae * u
@@ -219,7 +228,7 @@ def march_direct(v, ex, x0, h, dt, theta, lo, di, up, df_r, df_q, shift, is_put,
 
 @njit(cache=True)
 def march_psor(
-    v, ex, x0, h, dt, theta, lo, di, up, df_r, df_q, shift, is_put, american, bnd,
+    v, ex, x0, h, dt, theta, lo, di, up, df_r, df_q, shift, scale, is_put, american, bnd,
     omega, tol, max_iter, iters,
 ):
     """March ``v`` through all steps with projected successive over-relaxation.
@@ -259,8 +268,13 @@ def march_psor(
         d = di[k]
         u = up[k]
         vl, vh = far_values(ex[0] * sk, ex[n - 1] * sk, df_r[k], df_q[k], is_put, american)
+        vl *= scale[k]
+        vh *= scale[k]
         if american:
             obstacle(ex, sk, is_put, payoff)
+            if scale[k] != 1.0:
+                for j in range(n):
+                    payoff[j] *= scale[k]
         el = ae * lk
         ed = 1.0 + ae * d
         eu = ae * u

@@ -67,7 +67,7 @@ class DirectSweep:
         bnd = np.empty(plan.dt.shape[0])
         _kernels.march_direct(
             v, ex, space.x_min, space.h, plan.dt, plan.theta, plan.lo, plan.di, plan.up,
-            plan.df_r, plan.df_q, plan.shift, is_put, american, bnd,
+            plan.df_r, plan.df_q, plan.shift, plan.scale, is_put, american, bnd,
         )
         return MarchReport(bnd)
 
@@ -111,7 +111,7 @@ class ProjectedSOR:
         omega = -1.0 if self.omega is None else float(self.omega)
         failed = _kernels.march_psor(
             v, ex, space.x_min, space.h, plan.dt, plan.theta, plan.lo, plan.di, plan.up,
-            plan.df_r, plan.df_q, plan.shift, is_put, american, bnd, omega, self.tol,
+            plan.df_r, plan.df_q, plan.shift, plan.scale, is_put, american, bnd, omega, self.tol,
             self.max_iter, iters,
         )
         if failed >= 0:

@@ -13,12 +13,14 @@ The payoff kink stays on the strike node for the whole life, which keeps America
 cleanly second order; but ``lo`` turns negative (oscillations, negative prices) once
 ``|mu| h > s^2``, and the grid must span the forward's whole path ``mu T``.
 
-Frame "y" moves with the drift, ``y = x + M(tau)``, ``M(tau) = int_0^tau mu``, where the
-equation has no first-derivative term, ``w_tau = 1/2 s^2 w_yy - r w``, and the exercise value
-at level ``tau`` is the payoff at ``x = y - M(tau)``. It is monotone at every spacing and its
-grid covers only the spot's neighbourhood, so it serves very low volatility with a large drift
-(:func:`choose_frame`), where frame "x" would need a tiny spacing over a long domain. Its price
-of that: the exercise value's kink drifts between nodes, so American errors are less regular.
+Frame "y" moves with the drift, ``y = x + M(tau)``, ``M(tau) = int_0^tau mu``, and marches the
+undiscounted value ``u = v e^{int r}``, which obeys the heat equation ``u_tau = 1/2 s^2 u_yy``
+(no drift term, and no decay term for Crank-Nicolson to misjudge over long, high-rate lives);
+the exercise value at level ``tau`` is the payoff at ``x = y - M(tau)``, undiscounted alike.
+It is monotone at every spacing and its grid covers only the spot's neighbourhood, so it
+serves very low volatility with a large drift (:func:`choose_frame`), where frame "x" would
+need a tiny spacing over a long domain. Its price for that: the exercise value's kink drifts
+between nodes, so American errors are less regular and need shorter steps.
 
 The coefficients do not depend on the node, so a step is described by three numbers;
 time-dependent rates, yields or vols (:mod:`stopline.termstructure`) give one triple per step.
@@ -52,6 +54,10 @@ class StepPlan:
     shift : ndarray
         ``exp(-M(tau))`` at the end of each step in frame "y" (node ``y`` stands for
         ``S/K = e^y shift``); ones in frame "x".
+    scale : ndarray
+        ``1 / df_r`` in frame "y", whose operator leaves out the discounting (the kernels then
+        march the undiscounted value and scale exercise and far-field values to match); ones
+        in frame "x".
     """
 
     tau: FloatArray
@@ -63,6 +69,7 @@ class StepPlan:
     df_r: FloatArray
     df_q: FloatArray
     shift: FloatArray
+    scale: FloatArray
 
     @property
     def drift(self) -> float:
@@ -74,7 +81,7 @@ class StepPlan:
         sl = slice(start, stop)
         return StepPlan(
             self.tau[sl], self.dt[sl], self.theta[sl], self.lo[sl], self.di[sl], self.up[sl],
-            self.df_r[sl], self.df_q[sl], self.shift[sl],
+            self.df_r[sl], self.df_q[sl], self.shift[sl], self.scale[sl],
         )
 
 
@@ -83,7 +90,9 @@ def coefficients(
 ) -> tuple[float, float, float]:
     """``(lo, di, up)`` of the operator on spacing ``h`` in the given frame."""
     alpha = 0.5 * vol * vol / (h * h)
-    beta = 0.5 * (rate - div_yield - 0.5 * vol * vol) / h if frame == "x" else 0.0
+    if frame == "y":
+        return alpha, -2.0 * alpha, alpha
+    beta = 0.5 * (rate - div_yield - 0.5 * vol * vol) / h
     return alpha - beta, -2.0 * alpha - rate, alpha + beta
 
 
@@ -137,6 +146,7 @@ def plan_steps(
         df_r=np.exp(-int_r),
         df_q=np.exp(-int_q),
         shift=shift,
+        scale=np.exp(int_r) if frame == "y" else np.ones_like(time.dt),
     )
 
 

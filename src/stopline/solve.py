@@ -182,6 +182,7 @@ def solve(
     v = payoff_on(space, problem.is_put)
     if not problem.has_events:
         report = method.march(v, np.exp(space.x), space, plan, problem.is_put, problem.american)
+        v /= plan.scale[-1]
         payoff = payoff_on(space, problem.is_put, float(plan.shift[-1]))
         return GridSolution(space, time, v, payoff, plan.drift, report)
     if space.frame != "x":

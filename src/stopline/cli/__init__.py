@@ -9,6 +9,7 @@ from __future__ import annotations
 import typer
 
 from . import demo as _demo
+from . import implied as _implied
 from . import price as _price
 
 app = typer.Typer(
@@ -20,6 +21,7 @@ app = typer.Typer(
 )
 app.command("price")(_price.price_cmd)
 app.command("demo")(_demo.demo_cmd)
+app.command("implied")(_implied.implied_cmd)
 
 
 def main() -> None:
