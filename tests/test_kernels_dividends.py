@@ -19,7 +19,8 @@ def _after_twin(v: np.ndarray, x: float, x0: float, h: float, d: float, df_r: fl
     if s <= math.exp(x0):
         s = max(s, 0.0)
         if not is_put:
-            return 0.0
+            far = max(s * df_q - df_r, 0.0)
+            return max(far, s - 1.0) if american else far
         far = max(df_r - s * df_q, 0.0)
         return max(far, 1.0 - s) if american else far
     y = (math.log(s) - x0) / h

@@ -349,22 +349,12 @@ def _value_after(v, x, x0, h, d, df_r, df_q, is_put, american):
 
     A four-point Lagrange cubic in ``x`` limited to the range of the two bracketing nodes
     (so a monotone value stays monotone and non-negative); below the first node, the
-    far-field value of :func:`far_values` at the dropped spot.
+    far-field value of :func:`far_value` at the dropped spot.
     """
     n = v.shape[0]
     s = math.exp(x) - d
-    s_lo = math.exp(x0)
-    if s <= s_lo:
-        if s < 0.0:
-            s = 0.0
-        if not is_put:
-            return 0.0
-        val = df_r - s * df_q
-        if val < 0.0:
-            val = 0.0
-        if american and 1.0 - s > val:
-            val = 1.0 - s
-        return val
+    if s <= math.exp(x0):
+        return far_value(s if s > 0.0 else 0.0, df_r, df_q, is_put, american)
     y = (math.log(s) - x0) / h
     i = int(math.floor(y))
     if i > n - 2:
