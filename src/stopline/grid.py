@@ -9,7 +9,10 @@ preset's tolerance.
 Time: levels in time to expiry ``tau`` graded towards expiry, ``tau_k = T (k / m)^2``, since
 the American exercise boundary moves like ``sqrt(tau)`` near expiry and uniform steps lose
 order there. The first intervals are each taken as two fully implicit half steps (Rannacher
-1984) to damp the Crank-Nicolson ringing that the payoff kink would otherwise cause.
+1984) to damp the Crank-Nicolson ringing that the payoff kink would otherwise cause. With
+ex-dividend dates or term-structure breakpoints, :class:`SegmentedTimeGrid` puts a level on
+each and grades every segment afresh; a segment after an ex-date (where the exercise value
+makes a new kink) also starts with implicit half steps.
 """
 
 from __future__ import annotations
