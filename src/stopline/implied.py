@@ -30,9 +30,9 @@ intrinsic value of a deep in-the-money, long-dated American option can need 15 t
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from collections.abc import Callable
-import dataclasses
 from dataclasses import dataclass
 
 from ._validate import check_choice, check_real
