@@ -285,3 +285,14 @@ def test_price_does_not_jump_where_the_grid_gains_a_node(row: tuple) -> None:
         assert abs(solve(b)[0] - solve(a)[0]) <= 1e-12 * k
         steps += 1
     assert steps >= 1  # the sweep did cross a change of grid
+
+
+def test_implied_vol_keeps_dividends_and_curves() -> None:
+    # common practice: the inversion changes the vol only; cash dividends and curves stay
+    from stopline import PiecewiseConstant
+
+    mkt = Market(100.0, PiecewiseConstant((0.5, 1.0), (0.03, 0.05)), 0.3,
+                 dividends=[(0.4, 2.0)], dividend_model="spot")
+    opt = Option("call", 95.0, 1.0)
+    p = price(opt, mkt).price
+    assert implied_vol(opt, mkt, p) == pytest.approx(0.3, abs=1e-6)

@@ -6,12 +6,15 @@ from .contract import Option
 from .errors import ConvergenceError, InputError, StoplineError
 from .exercise import METHODS, DirectSweep, ProjectedSOR
 from .implied import ImpliedVolError, ImpliedVolResult, implied_vol, implied_vol_detail
-from .market import Market
+from .market import Market, parse_dividends
 from .pricing import PRESETS, ExerciseBoundary, GridSpec, Result, SolveStats, price
+from .termstructure import PiecewiseConstant
 
 __all__ = [
     "Option",
     "Market",
+    "PiecewiseConstant",
+    "parse_dividends",
     "price",
     "Result",
     "ExerciseBoundary",

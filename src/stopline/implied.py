@@ -30,6 +30,7 @@ intrinsic value of a deep in-the-money, long-dated American option can need 15 t
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from collections.abc import Callable
 from dataclasses import dataclass
@@ -132,6 +133,25 @@ class QuoteBounds:
     upper_name: str
 
 
+def _flat_equivalents(market: Market, t: float) -> tuple[float, float, float]:
+    """Spot less the present value of cash dividends, average rate and average yield over
+    ``t``: the flat market that gives the same European prices (exact for the escrowed model
+    and for term structures of rate and yield; for the spot model of dividends, a spot that
+    keeps the bounds below the true prices)."""
+    from .dividends import dividend_schedule, present_value
+    from .termstructure import PiecewiseConstant
+
+    r = market.rate.average(t) if isinstance(market.rate, PiecewiseConstant) else market.rate
+    q = (market.div_yield.average(t) if isinstance(market.div_yield, PiecewiseConstant)
+         else market.div_yield)
+    spot = market.spot
+    if market.dividends:
+        sched = dividend_schedule(market.dividends, t, market.valuation_date)
+        if sched.times.size:
+            spot -= present_value(sched.times, sched.amounts, market.rate)
+    return max(spot, 1e-300), float(r), float(q)
+
+
 def quote_bounds(option: Option, market: Market, time_to_expiry: float) -> QuoteBounds:
     """Model-free bounds on the price of the option.
 
@@ -144,8 +164,9 @@ def quote_bounds(option: Option, market: Market, time_to_expiry: float) -> Quote
     ----------
     Merton, R. C. (1973), Theory of rational option pricing, Bell J. Econ. 4(1).
     """
-    s, k, t = market.spot, option.strike, time_to_expiry
-    dr, dq = math.exp(-market.rate * t), math.exp(-market.div_yield * t)
+    k, t = option.strike, time_to_expiry
+    s, r_avg, q_avg = _flat_equivalents(market, t)
+    dr, dq = math.exp(-r_avg * t), math.exp(-q_avg * t)
     if option.is_put:
         euro_low = max(k * dr - s * dq, 0.0)
         intrinsic = max(k - s, 0.0)
@@ -245,7 +266,7 @@ def implied_vol_detail(
     def model(vol: float) -> float:
         nonlocal calls
         calls += 1
-        mkt = Market(market.spot, market.rate, vol, market.div_yield, market.valuation_date)
+        mkt = dataclasses.replace(market, vol=vol)
         res = price(option, mkt, accuracy=acc)
         error_estimates[vol] = res.error_estimate
         return res.price
@@ -271,7 +292,8 @@ def implied_vol_detail(
             f"({bounds.lower_name} {bounds.lower:.6g})",
             "below_model",
         )
-    euro = _EuropeanModel(option.is_put, market.spot, k, t, market.rate, market.div_yield)
+    s_eff, r_avg, q_avg = _flat_equivalents(market, t)
+    euro = _EuropeanModel(option.is_put, s_eff, k, t, r_avg, q_avg)
     v0 = euro.initial_guess(quote)
     transform = None
     if option.is_american and bounds.lower_name == "intrinsic value" and bounds.lower > 0.0:

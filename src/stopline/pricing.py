@@ -14,10 +14,17 @@ from .daycount import DEFAULT_DAY_COUNT
 from .errors import InputError
 from .exercise import ExerciseMethod, ProjectedSOR, get_method
 from .greeks import GridReadout, read_at_spot, theta_from_pde
-from .grid import SpaceGrid, TimeGrid, build_space_grid, build_time_grid
+from .grid import SpaceGrid, TimeGrid, build_space_grid
 from .market import Market
 from .operator import choose_frame
-from .solve import GridSolution, PDEProblem, solve
+from .solve import (
+    GridSolution,
+    PDEProblem,
+    problem_from_market,
+    solve,
+    theta_at_valuation,
+    time_grid_for,
+)
 
 __all__ = [
     "AccuracyPreset",
@@ -215,12 +222,13 @@ def _resolve_grid(
             "n_max": MAX_COARSE_NODES,
         }
     space = build_space_grid(problem.x_spot, sd, drift, width_sd=width, **kwargs)
-    if choose_frame(sd, drift, space.h, problem.vol, mu) == "y":
+    # cash dividends are applied in frame "x" (the dropped spot of a node is a fixed node)
+    if choose_frame(sd, drift, space.h, problem.vol, mu) == "y" and not problem.has_events:
         space = build_space_grid(problem.x_spot, sd, drift, width_sd=width, frame="y", **kwargs)
         if problem.american:
             # steps short enough that the exercise value's kink moves about a node per step
             levels = max(levels, min(math.ceil(abs(drift) / space.h), 20 * levels))
-    return space, build_time_grid(problem.expiry, levels), name
+    return space, time_grid_for(problem, levels), name
 
 
 def _decay_length(rate: float, mu: float, vol: float) -> float:
@@ -344,20 +352,23 @@ def price(
         return _expired(option, market, solver, t)
     k = option.strike
     american = option.is_american
-    warnings: list[str] = []
-    if american and _two_boundaries_possible(option.is_put, market.rate, market.div_yield):
+    problem = problem_from_market(option, market, t)
+    warnings: list[str] = list(problem.warnings)
+    if american and _two_boundaries_possible(option.is_put, problem.rate, problem.div_yield):
         if solver.name == "direct":
             solver = ProjectedSOR()
             warnings.append(
                 "rate and yield both negative: the exercise region may not touch the grid end, "
                 "so projected SOR was used instead of the direct sweep"
             )
-    if market.vol * math.sqrt(t) < MIN_SD_FOR_GRID:
+    if problem.vol * math.sqrt(t) < MIN_SD_FOR_GRID:
+        if problem.curves is not None or problem.dividend_tau:
+            raise InputError(
+                "vol", market.vol,
+                f"vol * sqrt(T) below {MIN_SD_FOR_GRID:g} is not supported with cash dividends "
+                "or term structures",
+            )
         return _zero_vol_limit(option, market, solver, t)
-    problem = PDEProblem(
-        option.is_put, american, t, market.rate, market.div_yield, market.vol,
-        math.log(market.spot / k),
-    )
     space_c, time_c, acc_name = _resolve_grid(problem, accuracy, grid)
     if space_c.n >= MAX_COARSE_NODES:
         warnings.append(
@@ -379,18 +390,18 @@ def price(
     delta = rf.delta + (rf.delta - rc.delta) / 3.0
     gamma = rf.gamma + (rf.gamma - rc.gamma) / 3.0
     if rf.exercised:
-        value, delta, gamma = rf.value, rf.delta, rf.gamma
+        # exercised at once: the intrinsic value of the real spot (also under escrowed dividends)
+        value = max(k - market.spot, 0.0) if option.is_put else max(market.spot - k, 0.0)
+        delta, gamma = rf.delta, rf.gamma
     # extrapolation may step below a bound the true price obeys; the bound is then closer
     floor = max(k - market.spot, 0.0) if option.is_put else max(market.spot - k, 0.0)
     value = max(value, floor if american else 0.0)
     # likewise delta: within [-1, 0] for a put and [0, 1] for a call (e^{-qT} when q < 0)
-    dmax = max(1.0, math.exp(-market.div_yield * t))
+    dmax = max(1.0, math.exp(-problem.div_yield * t))
     delta = min(max(delta, -dmax), 0.0) if option.is_put else min(max(delta, 0.0), dmax)
-    theta = theta_from_pde(
-        market.spot, value, delta, gamma, market.rate, market.div_yield, market.vol, rf.exercised
-    )
+    theta = theta_at_valuation(problem, market.spot, k, value, delta, gamma, rf.exercised)
     err = abs(rf.value - rc.value) / 3.0
-    boundary = ExerciseBoundary(fine.time.tau.copy(), k * np.exp(fine.report.boundary_x))
+    boundary = ExerciseBoundary(fine.boundary_times.copy(), k * np.exp(fine.report.boundary_x))
     stats = SolveStats(
         space_points=space_f.n,
         time_levels=time_f.levels,
