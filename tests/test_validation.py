@@ -64,7 +64,8 @@ def test_summary_lists_every_check_with_a_source(run) -> None:
         assert isinstance(c["passed"], bool)
         assert isinstance(c["value"], float) and isinstance(c["tolerance"], float)
     sections = {c["section"] for c in s["checks"]}
-    assert sections == {"european", "convergence", "trees", "published", "identities", "sample"}
+    assert sections == {"european", "convergence", "trees", "published", "identities",
+                        "dividends", "sample"}
 
 
 def test_published_checks_say_where_the_value_came_from(run) -> None:
