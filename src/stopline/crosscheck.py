@@ -595,6 +595,14 @@ def read_book(path: str | os.PathLike[str]) -> tuple[list[str], list[dict[str, o
     return header, rows
 
 
+def _current_umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
+
+
+_UMASK = _current_umask()
+
 _FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
 
 
@@ -637,6 +645,7 @@ def write_atomic(path: Path, text: str) -> None:
     """Write ``text`` to ``path`` through a temporary file in the same folder and os.replace."""
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
     try:
+        os.chmod(tmp, 0o666 & ~_UMASK)
         with os.fdopen(fd, "w", encoding="utf-8", newline="") as fh:
             fh.write(text)
             fh.flush()
