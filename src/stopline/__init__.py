@@ -5,6 +5,7 @@ from __future__ import annotations
 from .contract import Option
 from .errors import ConvergenceError, InputError, StoplineError
 from .exercise import METHODS, DirectSweep, ProjectedSOR
+from .implied import ImpliedVolError, ImpliedVolResult, implied_vol, implied_vol_detail
 from .market import Market
 from .pricing import PRESETS, ExerciseBoundary, GridSpec, Result, SolveStats, price
 
@@ -23,5 +24,9 @@ __all__ = [
     "StoplineError",
     "InputError",
     "ConvergenceError",
+    "implied_vol",
+    "implied_vol_detail",
+    "ImpliedVolResult",
+    "ImpliedVolError",
 ]
 __version__ = "0.1.0"
