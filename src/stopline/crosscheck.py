@@ -35,10 +35,7 @@ from .errors import InputError, StoplineError
 from .market import Market
 from .pricing import PRESETS, price
 
-try:  # the real solver lands with branch `implied`
-    from .implied import ImpliedVolError, implied_vol
-except ImportError:  # pragma: no cover - until then
-    from ._implied_fallback import ImpliedVolError, implied_vol
+from .implied import ImpliedVolError, implied_vol
 
 __all__ = [
     "REQUIRED_COLUMNS",
@@ -369,7 +366,8 @@ ALTERNATIVES: tuple[Alternative, ...] = (
 
 
 def _diagnose(
-    line: QuoteLine, allowed: float, implied: float | None, settings: CheckSettings
+    line: QuoteLine, allowed: float, implied: float | None, implied_problem: str,
+    settings: CheckSettings,
 ) -> tuple[str, tuple[str, ...]]:
     """Note and names of the alternatives that reproduce the quote within ``allowed``."""
     found: list[tuple[str, str]] = []
@@ -395,7 +393,7 @@ def _diagnose(
             ("vol",),
         )
     if implied is None:
-        detail = "no volatility reproduces the quote"
+        detail = f"no volatility reproduces the quote: {implied_problem}"
     else:
         detail = (f"the quote implies vol {implied:.6f}, {100.0 * (implied - vol):+.2f} vol points "
                   f"from the input, beyond {100.0 * settings.max_vol_shift:g}")
@@ -534,10 +532,11 @@ def check_row(raw: Mapping[str, object], settings: CheckSettings | None = None) 
     model = res.price
     diff = q - model
     allowed = settings.tolerance.allowed(vega)
+    iv_problem = ""
     try:
         iv = float(implied_vol(line.option, line.market, q, accuracy=settings.accuracy))
-    except (ImpliedVolError, StoplineError, ValueError):
-        iv = None
+    except (ImpliedVolError, StoplineError, ValueError) as exc:
+        iv, iv_problem = None, str(exc)
     base = RowCheck(
         model_price=model, difference=diff,
         implied_vol=math.nan if iv is None else iv,
@@ -547,7 +546,7 @@ def check_row(raw: Mapping[str, object], settings: CheckSettings | None = None) 
     )
     if abs(diff) <= allowed:
         return base
-    note, causes = _diagnose(line, allowed, iv, settings)
+    note, causes = _diagnose(line, allowed, iv, iv_problem, settings)
     return replace(base, status="mismatch", note=note, causes=causes)
 
 
