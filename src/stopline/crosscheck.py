@@ -32,10 +32,9 @@ from pathlib import Path
 from .contract import Option
 from .daycount import DEFAULT_DAY_COUNT, parse_date, year_fraction
 from .errors import InputError, StoplineError
+from .implied import ImpliedVolError, implied_vol
 from .market import Market
 from .pricing import PRESETS, price
-
-from .implied import ImpliedVolError, implied_vol
 
 __all__ = [
     "REQUIRED_COLUMNS",
