@@ -110,7 +110,9 @@ class DaskExecutor:
             self._client.submit(check_rows, c, settings, pure=False)
             for c in chunked(pairs, self.n)
         ]
-        for fut in as_completed(self._futures):
+        with self._client.as_current():
+            finished = as_completed(self._futures)
+        for fut in finished:
             yield fut.result()
 
     def close(self) -> None:
