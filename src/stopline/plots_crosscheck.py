@@ -23,8 +23,18 @@ _OK = "#3d7a9e"
 _MISMATCH = "#c8553d"
 
 
+#: Vol-point differences beyond this are drawn at the edge of the histogram.
+CLIP_POINTS = 10.0
+
+
+def _figure(width: float, height: float) -> Figure:
+    fig = Figure(figsize=(width, height), layout="constrained")
+    fig.get_layout_engine().set(rect=(0.0, 0.06, 1.0, 0.94))  # room for the caution below
+    return fig
+
+
 def _png(fig: Figure) -> bytes:
-    fig.text(0.01, 0.005, CAUTION, fontsize=5.5, color="#666666", ha="left", va="bottom", wrap=True)
+    fig.text(0.01, 0.01, CAUTION, fontsize=5.5, color="#666666", ha="left", va="bottom", wrap=True)
     buf = io.BytesIO()
     fig.savefig(buf, format="png", dpi=110)
     return buf.getvalue()
@@ -36,7 +46,7 @@ def _priced(checks: Sequence[RowCheck]) -> list[RowCheck]:
 
 def model_vs_quote_png(checks: Sequence[RowCheck]) -> bytes:
     """Scatter of the third party's quote against stopline's price, mismatches highlighted."""
-    fig = Figure(figsize=(6.0, 5.0), layout="constrained")
+    fig = _figure(6.0, 5.2)
     ax = fig.add_subplot()
     rows = _priced(checks)
     for status, colour, label in (("ok", _OK, "within tolerance"), ("mismatch", _MISMATCH, "mismatch")):
@@ -55,13 +65,25 @@ def model_vs_quote_png(checks: Sequence[RowCheck]) -> bytes:
 
 
 def vol_points_histogram_png(checks: Sequence[RowCheck], tolerance_points: float) -> bytes:
-    """Histogram of implied minus input vol, in vol points, with the tolerance band marked."""
-    fig = Figure(figsize=(6.0, 4.2), layout="constrained")
+    """Histogram of implied minus input vol, in vol points, with the tolerance band marked.
+
+    Differences beyond +/- :data:`CLIP_POINTS` are counted in the edge bins (and said so);
+    the count axis is linear up to 10 rows and logarithmic above, so a few planted problems
+    stay visible beside hundreds of clean rows.
+    """
+    fig = _figure(6.0, 4.4)
     ax = fig.add_subplot()
     pts = np.array([100.0 * c.vol_difference for c in _priced(checks)
                      if not math.isnan(c.vol_difference)])
+    beyond = int(np.sum(np.abs(pts) > CLIP_POINTS))
     if pts.size:
-        ax.hist(pts, bins=min(60, max(10, pts.size // 4)), color=_OK, edgecolor="white", lw=0.4)
+        clipped = np.clip(pts, -CLIP_POINTS, CLIP_POINTS)
+        ax.hist(clipped, bins=np.linspace(-CLIP_POINTS, CLIP_POINTS, 81), color=_OK,
+                edgecolor="white", lw=0.4)
+        ax.set_yscale("symlog", linthresh=10.0)
+    if beyond:
+        ax.text(0.98, 0.80, f"{beyond} row(s) beyond +/-{CLIP_POINTS:g}\nshown at the edges",
+                transform=ax.transAxes, ha="right", va="top", fontsize=8)
     ax.axvspan(-tolerance_points, tolerance_points, color="#dddddd", alpha=0.6, zorder=0,
                label=f"+/- {tolerance_points:g} vol points")
     ax.set_xlabel("implied vol of quote - input vol (vol points)")
@@ -73,7 +95,7 @@ def vol_points_histogram_png(checks: Sequence[RowCheck], tolerance_points: float
 
 def difference_vs_moneyness_png(checks: Sequence[RowCheck]) -> bytes:
     """Price difference (quote - model) against moneyness K/S, mismatches highlighted."""
-    fig = Figure(figsize=(6.0, 4.2), layout="constrained")
+    fig = _figure(6.0, 4.4)
     ax = fig.add_subplot()
     rows = _priced(checks)
     for status, colour in (("ok", _OK), ("mismatch", _MISMATCH)):
@@ -82,8 +104,9 @@ def difference_vs_moneyness_png(checks: Sequence[RowCheck]) -> bytes:
             x, y = np.array(pts).T
             ax.scatter(x, y, s=14, color=colour, label=status, alpha=0.8)
     ax.axhline(0.0, color="#999999", lw=0.8)
+    ax.set_yscale("symlog", linthresh=0.01)  # linear within +/- 0.01, logarithmic beyond
     ax.set_xlabel("moneyness K / S")
-    ax.set_ylabel("quote - model")
+    ax.set_ylabel("quote - model (linear within +/-0.01, log beyond)")
     ax.set_title("Differences against moneyness")
     if rows:
         ax.legend(fontsize=8)
