@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from .contract import Option
+from .crosscheck import CheckSettings, Tolerance, check_row, run_crosscheck
 from .errors import ConvergenceError, InputError, StoplineError
 from .exercise import METHODS, DirectSweep, ProjectedSOR
 from .implied import ImpliedVolError, ImpliedVolResult, implied_vol, implied_vol_detail
@@ -10,6 +11,10 @@ from .market import Market
 from .pricing import PRESETS, ExerciseBoundary, GridSpec, Result, SolveStats, price
 
 __all__ = [
+    "run_crosscheck",
+    "check_row",
+    "CheckSettings",
+    "Tolerance",
     "Option",
     "Market",
     "price",
