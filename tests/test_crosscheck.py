@@ -81,6 +81,17 @@ def test_difference_is_quote_minus_model_and_tolerance_scales_with_vega():
     assert chk.status == "mismatch"
 
 
+def test_vega_near_the_ends_of_the_vol_range():
+    # one-sided bumps where a central one would leave (0, 5]; compared with BSM vega
+    # (Black and Scholes 1973; closed form), loosely since a one-sided bump is first order
+    for vol in (4.995, 0.015):
+        r = row(style="european", div_yield="0", vol=vol)
+        chk = check_row(row(style="european", div_yield="0", vol=vol, quote=model(r)))
+        assert chk.status == "ok", chk.note
+        exact = bsm("put", 100, 105, 1.0, 0.05, 0.0, vol)["vega"]
+        assert chk.vega == pytest.approx(exact, rel=0.02, abs=1e-3)
+
+
 def test_tolerance_floor_and_overrides():
     assert Tolerance().allowed(0.1) == 0.005  # floor wins for tiny vega
     assert Tolerance().allowed(40.0) == pytest.approx(0.1)  # 0.25 vol points x 40
@@ -194,6 +205,8 @@ def test_quote_below_intrinsic_has_no_simple_cause_and_no_implied_vol():
         ({"valuation_date": "1/12/2026"}, "valuation_date='1/12/2026'"),
         ({"dividends": "2027-03-15:0.42;2027-06-15:0.42"}, "cash dividends not supported in this build"),
         ({"dividends": "2027-03-15=0.42"}, "dividends='2027-03-15=0.42'"),
+        ({"dividends": "0.25:1.5"}, "dividends='0.25:1.5': cash dividends not supported in this build"),
+        ({"dividends": "2027-03-15:0"}, "amount must be a finite number > 0"),
     ],
 )
 def test_bad_field_gives_error_naming_field_and_value(edit, fragment):

@@ -33,7 +33,7 @@ from .contract import Option
 from .daycount import DEFAULT_DAY_COUNT, parse_date, year_fraction
 from .errors import InputError, StoplineError
 from .implied import ImpliedVolError, implied_vol
-from .market import Market
+from .market import VOL_RANGE, Market
 from .pricing import PRESETS, price
 
 __all__ = [
@@ -145,9 +145,9 @@ class CheckSettings:
 
 @dataclass(frozen=True)
 class CashDividend:
-    """One cash dividend: ex-dividend date and amount per share."""
+    """One cash dividend: ex-dividend date (or years from valuation) and amount per share."""
 
-    ex_date: _dt.date
+    ex_date: _dt.date | float
     amount: float
 
 
@@ -207,6 +207,10 @@ def _number(raw: Mapping[str, object], name: str, *, required: bool = True) -> f
 def parse_cash_dividends(text: str) -> tuple[CashDividend, ...]:
     """Read ``"2027-03-15:0.42;2027-06-15:0.42"`` into cash dividends (empty text: none).
 
+    Each ``;``-separated entry is ``WHEN:AMOUNT``: an ISO ex-date or years from valuation,
+    and a cash amount per share > 0 (the format of :class:`Market`'s dividends on branch
+    ``dividends``).
+
     Raises
     ------
     InputError
@@ -216,18 +220,24 @@ def parse_cash_dividends(text: str) -> tuple[CashDividend, ...]:
     for entry in (e.strip() for e in text.split(";")):
         if not entry:
             continue
-        date_text, sep, amount_text = entry.partition(":")
+        when_text, sep, amount_text = entry.partition(":")
         if not sep:
-            raise InputError("dividends", entry, "each entry must be DATE:AMOUNT, e.g. 2027-03-15:0.42")
-        ex_date = parse_date("dividends", date_text)
+            raise InputError("dividends", entry, "each entry must be WHEN:AMOUNT, e.g. 2027-03-15:0.42")
+        try:
+            when: _dt.date | float = float(when_text)
+        except ValueError:
+            when = parse_date("dividends", when_text)
+        else:
+            if not (math.isfinite(when) and when >= 0.0):
+                raise InputError("dividends", entry, "years from valuation must be >= 0")
         try:
             amount = float(amount_text)
         except ValueError:
             raise InputError("dividends", entry, "amount is not a number") from None
-        if not (math.isfinite(amount) and amount >= 0.0):
-            raise InputError("dividends", entry, "amount must be a finite number >= 0")
-        out.append(CashDividend(ex_date, amount))
-    return tuple(sorted(out, key=lambda d: d.ex_date))
+        if not (math.isfinite(amount) and amount > 0.0):
+            raise InputError("dividends", entry, "amount must be a finite number > 0")
+        out.append(CashDividend(when, amount))
+    return tuple(out)
 
 
 def apply_cash_dividends(market: Market, dividends: Sequence[CashDividend]) -> Market:
@@ -243,8 +253,14 @@ def apply_cash_dividends(market: Market, dividends: Sequence[CashDividend]) -> M
     """
     if not dividends:
         return market
-    text = ";".join(f"{d.ex_date.isoformat()}:{d.amount:g}" for d in dividends)
+    # Once Market takes cash dividends:
+    #     return replace(market, dividends=tuple((d.ex_date, d.amount) for d in dividends))
+    text = ";".join(f"{_when(d.ex_date)}:{d.amount:g}" for d in dividends)
     raise InputError("dividends", text, "cash dividends not supported in this build")
+
+
+def _when(x: _dt.date | float) -> str:
+    return x.isoformat() if isinstance(x, _dt.date) else f"{x:g}"
 
 
 def parse_quote(raw: Mapping[str, object]) -> QuoteLine:
@@ -330,7 +346,7 @@ def _without_dividends(line: QuoteLine) -> tuple[Option, Market, str] | None:
         parts.append(f"yield {m.div_yield:g}")
     if line.dividends:
         parts.append(f"{len(line.dividends)} cash dividend(s)")
-    bare = Market(m.spot, m.rate, m.vol, 0.0, m.valuation_date)
+    bare = replace(m, div_yield=0.0, **({"dividends": ()} if hasattr(m, "dividends") else {}))
     return line.option, bare, f"dividends left out ({' and '.join(parts)} dropped)"
 
 
@@ -348,7 +364,7 @@ def _quote_vol(line: QuoteLine) -> tuple[Option, Market, str] | None:
     m = line.market
     if line.quote_vol is None or line.quote_vol == m.vol:
         return None
-    shifted = Market(m.spot, m.rate, line.quote_vol, m.div_yield, m.valuation_date)
+    shifted = replace(m, vol=line.quote_vol)
     points = 100.0 * (line.quote_vol - m.vol)
     return line.option, shifted, \
         f"the third party's own vol {line.quote_vol:g} ({points:+.2f} vol points from {m.vol:g})"
@@ -487,12 +503,13 @@ def _vega(line: QuoteLine, res: object, accuracy: str) -> float:
     if vega is not None:
         return float(vega)
     m = line.market
-    up = Market(m.spot, m.rate, m.vol + VEGA_BUMP, m.div_yield, m.valuation_date)
-    p_up = price(line.option, up, accuracy=accuracy).price
-    if m.vol > 2.0 * VEGA_BUMP:
-        down = Market(m.spot, m.rate, m.vol - VEGA_BUMP, m.div_yield, m.valuation_date)
-        return (p_up - price(line.option, down, accuracy=accuracy).price) / (2.0 * VEGA_BUMP)
-    return (p_up - res.price) / VEGA_BUMP
+    up = m.vol + VEGA_BUMP if m.vol + VEGA_BUMP <= VOL_RANGE[1] else m.vol  # one-sided at the ends
+    down = m.vol - VEGA_BUMP if m.vol > 2.0 * VEGA_BUMP else m.vol
+
+    def at(v: float) -> float:
+        return res.price if v == m.vol else price(line.option, replace(m, vol=v), accuracy=accuracy).price
+
+    return (at(up) - at(down)) / (up - down)
 
 
 def check_row(raw: Mapping[str, object], settings: CheckSettings | None = None) -> RowCheck:
