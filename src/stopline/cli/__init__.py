@@ -10,6 +10,7 @@ import typer
 
 from . import crosscheck as _crosscheck
 from . import demo as _demo
+from . import implied as _implied
 from . import price as _price
 
 app = typer.Typer(
@@ -21,6 +22,7 @@ app = typer.Typer(
 )
 app.command("price")(_price.price_cmd)
 app.command("demo")(_demo.demo_cmd)
+app.command("implied")(_implied.implied_cmd)
 app.command("crosscheck")(_crosscheck.crosscheck_cmd)
 
 
