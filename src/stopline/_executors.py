@@ -28,6 +28,10 @@ class Executor(Protocol):
 
     def map_chunks(self, pairs: Pairs, settings: object) -> Iterator[list]: ...
 
+    def drain(self) -> list[list]:
+        """After an interruption: stop new chunks, return finished ones not yet yielded."""
+        ...
+
     def close(self) -> None: ...
 
 
@@ -49,6 +53,9 @@ class SerialExecutor:
 
         for chunk in chunked(pairs, 4):
             yield check_rows(chunk, settings)
+
+    def drain(self) -> list[list]:
+        return []
 
     def close(self) -> None:
         pass
@@ -74,9 +81,16 @@ class ProcessExecutor:
 
         from .crosscheck import check_rows
 
-        futures = [self._pool.submit(check_rows, c, settings) for c in chunked(pairs, self.n)]
-        for fut in as_completed(futures):
+        self._futures = [self._pool.submit(check_rows, c, settings) for c in chunked(pairs, self.n)]
+        self._yielded: set = set()
+        for fut in as_completed(self._futures):
+            self._yielded.add(fut)
             yield fut.result()
+
+    def drain(self) -> list[list]:
+        # workers ignore SIGINT, so chunks already running finish; queued ones are cancelled
+        self._pool.shutdown(wait=True, cancel_futures=True)
+        return _unyielded(getattr(self, "_futures", []), getattr(self, "_yielded", set()))
 
     def close(self) -> None:
         self._pool.shutdown(wait=True, cancel_futures=True)
@@ -110,15 +124,30 @@ class DaskExecutor:
             self._client.submit(check_rows, c, settings, pure=False)
             for c in chunked(pairs, self.n)
         ]
+        self._yielded: set = set()
         with self._client.as_current():
             finished = as_completed(self._futures)
         for fut in finished:
+            self._yielded.add(fut.key)
             yield fut.result()
+
+    def drain(self) -> list[list]:
+        done = [f for f in self._futures if f.status == "finished" and f.key not in self._yielded]
+        return [f.result() for f in done]
 
     def close(self) -> None:
         if self._futures:
             self._client.cancel(self._futures)
         self._client.close()
+
+
+def _unyielded(futures: list, yielded: set) -> list[list]:
+    out = []
+    for f in futures:
+        if f in yielded or not f.done() or f.cancelled() or f.exception() is not None:
+            continue
+        out.append(f.result())
+    return out
 
 
 def make_executor(*, workers: int | None = None, scheduler: str | None = None) -> Executor:

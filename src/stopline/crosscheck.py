@@ -835,7 +835,12 @@ def run_crosscheck(
             if on_progress is not None:
                 on_progress(len(done), total)
     except BaseException:
-        _save_partial(partial_path, digest, settings, done)
+        try:
+            for batch in executor.drain():  # chunks that finished while stopping
+                for i, chk in batch:
+                    done[i] = chk
+        finally:
+            _save_partial(partial_path, digest, settings, done)
         raise
     finally:
         executor.close()
