@@ -9,7 +9,7 @@ from typer.testing import CliRunner
 from stopline.cli import app
 from stopline.cli._common import CAUTION
 
-from ..test_crosscheck import row, small_book, write_book
+from ..test_crosscheck import model, row, small_book, write_book
 
 runner = CliRunner()
 
@@ -33,17 +33,14 @@ def test_crosscheck_writes_files_and_exits_1_when_a_row_is_in_error(tmp_path):
 
 
 def test_clean_book_exits_0(tmp_path):
-    good = row(id="G", quote="0")
-    res0 = runner.invoke(app, ["crosscheck", str(write_book(tmp_path / "a.csv", [good])),
-                               "--out", str(tmp_path / "o0"), "--workers", "1"])
-    with (tmp_path / "o0" / "results.csv").open(newline="") as fh:
-        model = float(next(csv.DictReader(fh))["model_price"])
-    assert res0.exit_code == 0  # a mismatch is not an error
-    good["quote"] = f"{model:.6f}"
-    res = runner.invoke(app, ["crosscheck", str(write_book(tmp_path / "b.csv", [good])),
+    good = row(id="G")
+    good["quote"] = f"{model(good):.6f}"
+    off = row(id="M", strike="110")
+    off["quote"] = f"{model(off) + 1.0:.6f}"
+    res = runner.invoke(app, ["crosscheck", str(write_book(tmp_path / "b.csv", [good, off])),
                               "--out", str(tmp_path / "o1"), "--workers", "1"])
-    assert res.exit_code == 0, res.output
-    assert "ok │ 1" in flat(res.stdout)
+    assert res.exit_code == 0, res.output  # a mismatch is not an error
+    assert "ok │ 1" in flat(res.stdout) and "mismatch │ 1" in flat(res.stdout)
 
 
 def test_tolerance_options(tmp_path):
