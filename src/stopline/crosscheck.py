@@ -294,8 +294,9 @@ def parse_quote(raw: Mapping[str, object]) -> QuoteLine:
     if quote < 0.0:
         raise InputError("quote", _text(raw, "quote"), "must be >= 0")
     quote_vol = _number(raw, "quote_vol", required=False)
-    if quote_vol is not None and not (0.0 < quote_vol <= 5.0):
-        raise InputError("quote_vol", _text(raw, "quote_vol"), "must be in (0, 5]")
+    lo, hi = VOL_RANGE
+    if quote_vol is not None and not (lo < quote_vol <= hi):
+        raise InputError("quote_vol", _text(raw, "quote_vol"), f"must be in ({lo:g}, {hi:g}]")
     dividends = parse_cash_dividends(_text(raw, "dividends"))
     market = apply_cash_dividends(market, dividends)
     return QuoteLine(row_id, option, market, quote, quote_vol, dividends)
