@@ -100,6 +100,7 @@ def test_report_content(run):
     assert "ACT/365 fixed" in text
     assert "Mismatches (1)" in text and "priced as European (early exercise ignored)" in text
     assert "Rows in error (1)" in text and "vol=-0.3" in text
+    assert "mismatches reproduced by (a row may have several) rows priced as European 1" in text
     assert parser.tables >= 4
 
 

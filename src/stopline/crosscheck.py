@@ -47,6 +47,7 @@ __all__ = [
     "QuoteLine",
     "Alternative",
     "ALTERNATIVES",
+    "CAUSE_LABELS",
     "RowCheck",
     "CrossCheckRun",
     "parse_quote",
@@ -313,12 +314,15 @@ class Alternative:
     ----------
     name : str
         Short key, e.g. ``"european"``.
+    label : str
+        Short phrase for summaries, e.g. ``"priced as European"``.
     build : callable
         ``build(line) -> (option, market, description) or None``: the re-priced inputs and a
         phrase for the note, or None when the alternative does not apply to the row.
     """
 
     name: str
+    label: str
     build: Callable[[QuoteLine], tuple[Option, Market, str] | None]
 
 
@@ -373,12 +377,16 @@ def _quote_vol(line: QuoteLine) -> tuple[Option, Market, str] | None:
 
 #: Alternatives tried, in order, on every mismatch. Add one here to try it everywhere.
 ALTERNATIVES: tuple[Alternative, ...] = (
-    Alternative("european", _as_european),
-    Alternative("american", _as_american),
-    Alternative("no_dividends", _without_dividends),
-    Alternative("act360", _act360),
-    Alternative("quote_vol", _quote_vol),
+    Alternative("european", "priced as European", _as_european),
+    Alternative("american", "priced as American", _as_american),
+    Alternative("no_dividends", "dividends left out", _without_dividends),
+    Alternative("act360", "ACT/360 time", _act360),
+    Alternative("quote_vol", "the third party's own vol", _quote_vol),
 )
+#: Label of every cause a mismatch can be given (the alternatives, then a different vol).
+CAUSE_LABELS: dict[str, str] = {a.name: a.label for a in ALTERNATIVES} | {
+    "vol": "a different volatility (within the vol-shift limit)",
+}
 
 
 def _diagnose(

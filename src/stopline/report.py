@@ -14,7 +14,7 @@ import math
 from pathlib import Path
 
 from .cli._common import CAUTION
-from .crosscheck import CrossCheckRun, RowCheck, write_atomic
+from .crosscheck import CAUSE_LABELS, CrossCheckRun, RowCheck, write_atomic
 
 __all__ = ["render_report", "write_report", "REPORT_NAME"]
 
@@ -28,8 +28,9 @@ h1 { font-size: 1.5em; } h2 { font-size: 1.2em; margin-top: 1.6em; border-bottom
 table { border-collapse: collapse; font-size: 0.85em; margin: 0.5em 0; }
 th, td { border: 1px solid #ccc; padding: 0.2em 0.5em; text-align: left; vertical-align: top; }
 td.num { text-align: right; font-variant-numeric: tabular-nums; }
+td.id { white-space: nowrap; }
 .caution { background: #fff6e0; border-left: 4px solid #d9a400; padding: 0.5em 1em; }
-.figs img { max-width: 32%; min-width: 20em; margin: 0.3em; border: 1px solid #ddd; }
+.figs img { width: 48%; min-width: 24em; margin: 0.3em; border: 1px solid #ddd; }
 """
 
 
@@ -47,7 +48,7 @@ def _img(png: bytes, alt: str) -> str:
 
 
 def _row_table(run: CrossCheckRun, items: list[tuple[int, RowCheck]], with_numbers: bool) -> str:
-    cols = ["#", "id", "kind", "style", "spot", "strike", "expiry"]
+    cols = ["row", "id", "kind", "style", "spot", "strike", "expiry"]
     if with_numbers:
         cols += ["quote", "model", "quote - model", "tolerance", "vol pts"]
     cols.append("note")
@@ -55,7 +56,8 @@ def _row_table(run: CrossCheckRun, items: list[tuple[int, RowCheck]], with_numbe
     for i, c in items:
         raw = run.rows[i]
         cells = [f'<td class="num">{i + 1}</td>']
-        cells += [f"<td>{_e(raw.get(k) or '')}</td>" for k in ("id", "kind", "style", "spot", "strike", "expiry")]
+        cells.append(f'<td class="id">{_e(raw.get("id") or "")}</td>')
+        cells += [f"<td>{_e(raw.get(k) or '')}</td>" for k in ("kind", "style", "spot", "strike", "expiry")]
         if with_numbers:
             vp = 100.0 * c.vol_difference
             cells += [f'<td class="num">{v}</td>' for v in (
@@ -92,13 +94,16 @@ def render_report(run: CrossCheckRun, *, generated: _dt.datetime | None = None) 
     worst = sorted(priced, key=lambda ic: -abs(ic[1].difference))[:WORST]
     by_cause: dict[str, int] = {}
     for _, c in mismatches:
-        for name in c.causes or ("no simple cause",):
-            by_cause[name] = by_cause.get(name, 0) + 1
+        for name in c.causes or ("",):
+            label = CAUSE_LABELS.get(name, "no simple cause found")
+            by_cause[label] = by_cause.get(label, 0) + 1
     total = len(run.checks)
     summary = "".join(
         f"<tr><th>{_e(s)}</th><td class=num>{counts[s]}</td></tr>" for s in ("ok", "mismatch", "error")
     )
-    causes = "".join(f"<tr><th>{_e(k)}</th><td class=num>{v}</td></tr>" for k, v in sorted(by_cause.items()))
+    order = [*CAUSE_LABELS.values(), "no simple cause found"]
+    causes = "".join(f"<tr><th>{_e(k)}</th><td class=num>{by_cause[k]}</td></tr>"
+                     for k in order if k in by_cause)
     conventions = [
         "Model: Black-Scholes equation solved by Crank-Nicolson finite differences (stopline), "
         f"accuracy preset &quot;{_e(run.settings.accuracy)}&quot;, early exercise per each row's style.",
@@ -129,7 +134,8 @@ def render_report(run: CrossCheckRun, *, generated: _dt.datetime | None = None) 
         f"<table><tr><th>status</th><th>rows</th></tr>{summary}</table>",
     ]
     if causes:
-        parts.append(f"<table><tr><th>mismatch explained by</th><th>rows</th></tr>{causes}</table>")
+        parts.append("<table><tr><th>mismatches reproduced by (a row may have several)</th>"
+                     f"<th>rows</th></tr>{causes}</table>")
     parts += ["<h3>Conventions and tolerance</h3><ul>"]
     parts += [f"<li>{c}</li>" for c in conventions]
     parts += ["</ul>", "<h3>Worst differences</h3>", _row_table(run, worst, True)]
