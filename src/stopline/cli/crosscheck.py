@@ -110,8 +110,7 @@ def crosscheck_cmd(
 ) -> None:
     """Price every quote in a book, compare, and diagnose each mismatch.
 
-    Writes OUT/results.csv (every input row with the model price, difference, implied vol,
-    status and note) and OUT/report.html. Exits 1 when some row is in error.
+    Writes OUT/results.csv (every input row with the model price, difference, implied vol, status and note) and OUT/report.html. Exits 1 when some row is in error, 130 on Ctrl-C (finished rows kept; continue with --resume).
     """
     run = run_and_report(quotes, out, workers=workers, scheduler=scheduler, resume=resume,
                          price_tolerance=price_tolerance, vol_tolerance=vol_tolerance,
