@@ -311,6 +311,25 @@ def test_run_keeps_every_row_in_order_with_its_columns(tmp_path):
     assert not list((tmp_path / "out").glob("*.tmp")) and not (tmp_path / "out" / PARTIAL_NAME).exists()
 
 
+def test_unexpected_exception_becomes_a_row_error(tmp_path, monkeypatch):
+    import stopline.crosscheck as cc
+
+    real = cc.check_row
+
+    def buggy(raw, settings=None):  # a bug that hits one row only
+        if raw["id"] == "OK1":
+            raise ZeroDivisionError("float division by zero")
+        return real(raw, settings)
+
+    monkeypatch.setattr(cc, "check_row", buggy)
+    run = run_crosscheck(small_book(tmp_path), tmp_path / "out", workers=1)
+    res = read_results(run.results_path)
+    assert len(res) == 8
+    bad = next(r for r in res if r["id"] == "OK1")
+    assert bad["status"] == "error"
+    assert bad["note"] == "unexpected error (please report): ZeroDivisionError: float division by zero"
+
+
 def test_output_next_to_input_refuses_to_overwrite_it(tmp_path):
     book = write_book(tmp_path / "results.csv", [row(quote="5")])
     with pytest.raises(InputError, match="would overwrite the quotes file"):
@@ -352,6 +371,20 @@ def test_interrupt_keeps_finished_rows_and_resume_finishes(tmp_path, workers):
     assert not (out / PARTIAL_NAME).exists()
     clean = run_crosscheck(book, tmp_path / "clean", workers=1)
     assert resumed.results_path.read_bytes() == clean.results_path.read_bytes()
+
+
+def test_checkpoint_is_written_during_the_run(tmp_path):
+    book = small_book(tmp_path)
+    out = tmp_path / "out"
+    seen = []
+
+    def look(done: int, total: int) -> None:
+        if (out / PARTIAL_NAME).exists():
+            seen.append(len(json.loads((out / PARTIAL_NAME).read_text())["done"]))
+
+    run_crosscheck(book, out, workers=1, on_progress=look, checkpoint_seconds=0.0)
+    assert seen and seen == sorted(seen) and seen[-1] == 8
+    assert not (out / PARTIAL_NAME).exists()  # removed once results.csv is written
 
 
 def test_resume_refuses_other_settings_or_another_book(tmp_path):

@@ -578,8 +578,19 @@ def check_row(raw: Mapping[str, object], settings: CheckSettings | None = None) 
 def check_rows(
     rows: Iterable[tuple[int, Mapping[str, object]]], settings: CheckSettings
 ) -> list[tuple[int, RowCheck]]:
-    """Check a chunk of ``(index, row)`` pairs; the unit of work sent to a worker."""
-    return [(i, check_row(raw, settings)) for i, raw in rows]
+    """Check a chunk of ``(index, row)`` pairs; the unit of work sent to a worker.
+
+    An unexpected exception on one row (a bug, not bad data) becomes that row's error note
+    with the exception's type, so one row cannot sink the batch.
+    """
+    out = []
+    for i, raw in rows:
+        try:
+            chk = check_row(raw, settings)
+        except Exception as exc:  # noqa: BLE001 - reported on the row, never dropped
+            chk = RowCheck(note=f"unexpected error (please report): {type(exc).__name__}: {exc}")
+        out.append((i, chk))
+    return out
 
 
 # --------------------------------------------------------------------------- the book
@@ -797,7 +808,8 @@ def run_crosscheck(
         ``on_progress(done, total)`` after each finished chunk, in this process. An exception
         raised there (e.g. KeyboardInterrupt) stops the run after the checkpoint is saved.
     checkpoint_seconds : float
-        Least time between two checkpoint writes.
+        Least time between two checkpoint writes (longer for a large book: at least twenty
+        times the last write took).
 
     Returns
     -------
@@ -830,6 +842,7 @@ def run_crosscheck(
     if on_progress is not None:
         on_progress(len(done), total)
     last_save = time.monotonic()
+    interval = checkpoint_seconds
     start = time.perf_counter()
     priced = 0
     try:
@@ -838,9 +851,10 @@ def run_crosscheck(
                 done[i] = chk
             priced += len(batch)
             now = time.monotonic()
-            if now - last_save >= checkpoint_seconds:
+            if now - last_save >= interval:
                 _save_partial(partial_path, digest, settings, done)
-                last_save = now
+                last_save = time.monotonic()
+                interval = max(checkpoint_seconds, 20.0 * (last_save - now))
             if on_progress is not None:
                 on_progress(len(done), total)
     except BaseException:
