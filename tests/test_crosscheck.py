@@ -383,7 +383,7 @@ def test_checkpoint_is_written_during_the_run(tmp_path):
             seen.append(len(json.loads((out / PARTIAL_NAME).read_text())["done"]))
 
     run_crosscheck(book, out, workers=1, on_progress=look, checkpoint_seconds=0.0)
-    assert seen and seen == sorted(seen) and seen[-1] == 8
+    assert seen and seen == sorted(seen) and 1 <= seen[0] < 8  # finished rows, before the end
     assert not (out / PARTIAL_NAME).exists()  # removed once results.csv is written
 
 
