@@ -203,9 +203,8 @@ def test_quote_below_intrinsic_has_no_simple_cause_and_no_implied_vol():
         ({"quote_vol": "7"}, "quote_vol='7'"),
         ({"id": ""}, "id='': is missing"),
         ({"valuation_date": "1/12/2026"}, "valuation_date='1/12/2026'"),
-        ({"dividends": "2027-03-15:0.42;2027-06-15:0.42"}, "cash dividends not supported in this build"),
+        ({"dividends": "2026-11-15:0.42", "valuation_date": "2026-12-01"}, "dividends='2026-11-15'"),
         ({"dividends": "2027-03-15=0.42"}, "dividends='2027-03-15=0.42'"),
-        ({"dividends": "0.25:1.5"}, "dividends='0.25:1.5': cash dividends not supported in this build"),
         ({"dividends": "2027-03-15:0"}, "amount must be a finite number > 0"),
     ],
 )
@@ -432,3 +431,13 @@ def test_demo_book_copies_are_identical():
     assert 200 <= len(rows) <= 300
     assert {r["planted"] for r in rows} >= {"european", "no_dividends", "vol", "act360",
                                             "unexplained", "error"}
+
+
+def test_cash_dividends_are_priced_and_their_omission_is_diagnosed():
+    # common practice: a quote computed without the cash dividend is explained by leaving it out
+    r = row(dividends="0.25:1.5", div_yield="0")
+    bare = model(row(div_yield="0"))
+    chk = check_row(row(dividends="0.25:1.5", div_yield="0", quote=f"{bare:.10f}"))
+    assert chk.status == "mismatch"
+    assert "dividends left out" in chk.note
+    assert check_row(r).status != "error"

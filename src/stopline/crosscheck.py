@@ -242,22 +242,16 @@ def parse_cash_dividends(text: str) -> tuple[CashDividend, ...]:
 
 
 def apply_cash_dividends(market: Market, dividends: Sequence[CashDividend]) -> Market:
-    """The market with cash dividends attached: the one place that knows how.
-
-    Cash dividends on :class:`Market` are being added on branch ``dividends``; once they
-    land, build the market with them here and nothing else in this module changes.
+    """The market with cash dividends attached (spot model unless the market says otherwise).
 
     Raises
     ------
     InputError
-        While this build has no cash-dividend model.
+        Naming ``dividends`` for an ex-date before the valuation date.
     """
     if not dividends:
         return market
-    # Once Market takes cash dividends:
-    #     return replace(market, dividends=tuple((d.ex_date, d.amount) for d in dividends))
-    text = ";".join(f"{_when(d.ex_date)}:{d.amount:g}" for d in dividends)
-    raise InputError("dividends", text, "cash dividends not supported in this build")
+    return replace(market, dividends=tuple((d.ex_date, d.amount) for d in dividends))
 
 
 def _when(x: _dt.date | float) -> str:
