@@ -5,12 +5,12 @@ Five fictional underlyings, a strip of strikes and expiries each, puts and calls
 priced under another assumption, or broken on purpose:
 
 - ``european``: an American option quoted as if European (early exercise ignored);
-- ``no_dividends``: the dividend yield left out;
+- ``no_dividends``: the dividend yield or the cash dividends left out;
 - ``vol``: a different volatility (some rows give that vol in ``quote_vol``);
 - ``act360``: a date expiry counted ACT/360 instead of ACT/365;
 - ``unexplained``: a quote no simple assumption reproduces;
-- ``error``: a bad field (negative vol, missing strike, unknown kind, ...), or a cash
-  dividend schedule (not supported until cash dividends land).
+- ``error``: a bad field (negative vol, missing strike, unknown kind, an ex-dividend date
+  before the valuation date, ...).
 
 The ``planted`` column records which, so the demo can show that each is found. The
 ``desk`` and ``comment`` columns are carried through untouched (some comments start with
@@ -27,6 +27,7 @@ src/stopline/data/demo_quotes.csv.
 from __future__ import annotations
 
 import csv
+import dataclasses
 import datetime as dt
 import io
 import math
@@ -55,6 +56,10 @@ UNDERLYINGS = {
 MONEYNESS = (0.8, 0.9, 0.95, 1.0, 1.05, 1.1, 1.2)
 EXPIRY_DATES = (dt.date(2027, 1, 15), dt.date(2027, 3, 19), dt.date(2027, 6, 18), dt.date(2027, 12, 17))
 DESKS = ("flow-1", "flow-2", "exotics")
+#: Quarterly cash dividends (ex-date: amount) of the underlyings that pay cash.
+CASH_DIVIDENDS = {
+    "VXRB": "2027-02-12:0.35;2027-05-14:0.35;2027-08-13:0.35;2027-11-12:0.35",
+}
 
 COLUMNS = ("id", "underlying", "kind", "style", "spot", "strike", "expiry", "valuation_date",
            "rate", "div_yield", "dividends", "vol", "quote", "quote_vol", "desk", "comment",
@@ -71,8 +76,8 @@ def _value(option: Option, market: Market) -> float:
 
 
 def _vega(option: Option, market: Market) -> float:
-    up = Market(market.spot, market.rate, market.vol + 0.01, market.div_yield, market.valuation_date)
-    dn = Market(market.spot, market.rate, market.vol - 0.01, market.div_yield, market.valuation_date)
+    up = dataclasses.replace(market, vol=market.vol + 0.01)
+    dn = dataclasses.replace(market, vol=market.vol - 0.01)
     return (_value(option, up) - _value(option, dn)) / 0.02
 
 
@@ -93,7 +98,8 @@ def _base_rows() -> list[dict[str, object]]:
                         "underlying": ticker, "kind": kind, "style": style, "spot": spot,
                         "strike": f"{k:g}", "expiry": expiry,
                         "valuation_date": VALUATION.isoformat() if dated else "",
-                        "rate": RATE, "div_yield": q, "dividends": "", "vol": vol,
+                        "rate": RATE, "div_yield": q, "vol": vol,
+                        "dividends": CASH_DIVIDENDS.get(ticker, ""),
                         "quote_vol": "", "desk": DESKS[len(rows) % 3], "comment": "",
                         "planted": "",
                     })
@@ -101,7 +107,8 @@ def _base_rows() -> list[dict[str, object]]:
 
 
 def _contract(row: dict[str, object], *, style: str | None = None, expiry: object = None,
-              div_yield: float | None = None, vol: float | None = None) -> tuple[Option, Market]:
+              div_yield: float | None = None, vol: float | None = None,
+              cash: bool = True) -> tuple[Option, Market]:
     exp = row["expiry"] if expiry is None else expiry
     try:
         exp = float(exp)
@@ -110,7 +117,8 @@ def _contract(row: dict[str, object], *, style: str | None = None, expiry: objec
     opt = Option(row["kind"], float(row["strike"]), exp, style=style or row["style"])
     mkt = Market(float(row["spot"]), RATE, float(row["vol"]) if vol is None else vol,
                  float(row["div_yield"]) if div_yield is None else div_yield,
-                 valuation_date=row["valuation_date"] or None)
+                 valuation_date=row["valuation_date"] or VALUATION.isoformat(),
+                 dividends=str(row["dividends"]) if cash else "")
     return opt, mkt
 
 
@@ -147,8 +155,8 @@ def make_book(seed: int = SEED) -> list[dict[str, object]]:
     american = lambda r: r["style"] == "american"  # noqa: E731
     plant("european", lambda r: american(r) and r["kind"] == "put" and float(r["strike"]) > float(r["spot"]),
           lambda r: _value(*_contract(r, style="european")))
-    plant("no_dividends", lambda r: float(r["div_yield"]) > 0,
-          lambda r: _value(*_contract(r, div_yield=0.0)))
+    plant("no_dividends", lambda r: float(r["div_yield"]) > 0 or bool(r["dividends"]),
+          lambda r: _value(*_contract(r, div_yield=0.0, cash=False)))
     plant("act360", lambda r: bool(r["valuation_date"]),
           lambda r: _value(*_contract(r, expiry=year_fraction(
               VALUATION, dt.date.fromisoformat(str(r["expiry"])), "ACT/360"))))
@@ -174,7 +182,7 @@ def make_book(seed: int = SEED) -> list[dict[str, object]]:
     broken = [i for i in order if i not in used][: 7]
     edits = [
         ("vol", "-0.25"), ("strike", ""), ("kind", "straddle"), ("spot", "n/a"),
-        ("expiry", "2026-09-18"), ("dividends", "2027-03-15:0.42;2027-06-15:0.42"),
+        ("expiry", "2026-09-18"), ("dividends", "2026-06-15:0.42"),
         ("quote", "1.2.3"),
     ]
     for i, (col, value) in zip(broken, edits, strict=True):

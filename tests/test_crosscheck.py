@@ -435,7 +435,7 @@ def test_demo_book_copies_are_identical():
 
 def test_cash_dividends_are_priced_and_their_omission_is_diagnosed():
     # common practice: a quote computed without the cash dividend is explained by leaving it out
-    r = row(dividends="0.25:1.5", div_yield="0")
+    r = row(dividends="0.25:1.5", div_yield="0", quote="9.0")
     bare = model(row(div_yield="0"))
     chk = check_row(row(dividends="0.25:1.5", div_yield="0", quote=f"{bare:.10f}"))
     assert chk.status == "mismatch"
