@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from .contract import Option
+from .crosscheck import CheckSettings, Tolerance, check_row, run_crosscheck
 from .errors import ConvergenceError, InputError, StoplineError
 from .exercise import METHODS, DirectSweep, ProjectedSOR
 from .implied import ImpliedVolError, ImpliedVolResult, implied_vol, implied_vol_detail
@@ -11,6 +12,10 @@ from .pricing import PRESETS, ExerciseBoundary, GridSpec, Result, SolveStats, pr
 from .termstructure import PiecewiseConstant
 
 __all__ = [
+    "run_crosscheck",
+    "check_row",
+    "CheckSettings",
+    "Tolerance",
     "Option",
     "Market",
     "PiecewiseConstant",
