@@ -295,14 +295,24 @@ def implied_study(objs, repeats: int) -> dict | None:  # noqa: ANN001
     fn = getattr(implied, "implied_vol", None) or getattr(implied, "implied_volatility", None)
     if fn is None:
         return {"skipped": "stopline.implied has no implied_vol()"}
-    sample = objs[:20]
-    quotes = [(o, m, price(o, m).price) for o, m in sample]
-    try:
-        t_iv = time_per_call(lambda x: fn(x[0], x[1], x[2]), quotes, repeats)
-    except TypeError as exc:
-        return {"skipped": f"implied_vol signature not recognised: {exc}"}
+    from stopline.errors import StoplineError
+
+    quotes = []
+    for o, m in objs[:40]:
+        q = price(o, m).price
+        try:
+            fn(o, m, q)
+        except TypeError as exc:
+            return {"skipped": f"implied_vol signature not recognised: {exc}"}
+        except StoplineError:  # e.g. a quote at intrinsic value inside the exercise region
+            continue
+        quotes.append((o, m, q))
+        if len(quotes) == 20:
+            break
+    t_iv = time_per_call(lambda x: fn(x[0], x[1], x[2]), quotes, repeats)
     t_px = time_per_call(lambda x: price(x[0], x[1]), quotes, repeats)
-    return {"time_iv_ms": 1e3 * t_iv, "time_price_ms": 1e3 * t_px, "ratio": t_iv / t_px}
+    return {"time_iv_ms": 1e3 * t_iv, "time_price_ms": 1e3 * t_px, "ratio": t_iv / t_px,
+            "n_quotes": len(quotes)}
 
 
 CLI_ARGS = ["price", "--kind", "put", "--spot", "95", "--strike", "100", "--expiry", "0.75",

@@ -1,4 +1,4 @@
-"""The march kernels against plain-NumPy twins (textbook Thomas / Brennan-Schwartz per step)."""
+"""Each numba kernel against a plain-NumPy twin written from the same equations."""
 
 from __future__ import annotations
 
@@ -14,74 +14,119 @@ from stopline.operator import plan_steps
 from stopline.solve import payoff_on
 
 
-def _twin_march(v, payoff, x0, h, plan, is_put, american):  # noqa: ANN001, ANN202
-    """Plain-NumPy Brennan-Schwartz march: a division per node, no fixed point, no scaling."""
-    n = v.size
+def _twin_far(s, df_r, df_q, is_put, american):
+    fwd = (df_r - s * df_q) if is_put else (s * df_q - df_r)
+    intrinsic = max((1 - s) if is_put else (s - 1), 0.0)
+    return max(fwd, 0.0, intrinsic if american else 0.0)
+
+
+def _twin_march(v, x0, h, plan, is_put, american):
+    """Theta steps solved with scipy's banded solver; American by projected iteration."""
     v = v.copy()
-    s_lo, s_hi = math.exp(x0), math.exp(x0 + (n - 1) * h)
+    n = v.size
     for k in range(plan.dt.size):
-        ae = (1 - plan.theta[k]) * plan.dt[k]
-        ai = plan.theta[k] * plan.dt[k]
+        s_nodes = np.exp(x0 + h * np.arange(n)) * plan.shift[k]
+        payoff = np.maximum((1 - s_nodes) if is_put else (s_nodes - 1), 0.0)
+        s_lo, s_hi = s_nodes[0], s_nodes[-1]
+        ae, ai = (1 - plan.theta[k]) * plan.dt[k], plan.theta[k] * plan.dt[k]
         lo, di, up = plan.lo[k], plan.di[k], plan.up[k]
-        vl, vh = _kernels.far_values.py_func(
-            s_lo, s_hi, plan.df_r[k], plan.df_q[k], is_put, american
-        )
-        rhs = ae * lo * v[:-2] + (1 + ae * di) * v[1:-1] + ae * up * v[2:]
-        a, b, c = -ai * lo, 1 - ai * di, -ai * up
+        vl, vh = (_twin_far(s, plan.df_r[k], plan.df_q[k], is_put, american) for s in (s_lo, s_hi))
+        rhs = v[1:-1] + ae * (lo * v[:-2] + di * v[1:-1] + up * v[2:])
+        rhs[0] += ai * lo * vl
+        rhs[-1] += ai * up * vh
         m = n - 2
-        if is_put:
-            rhs[-1] -= c * vh
-            w = np.empty(m)
-            w[-1] = 1 / b
-            for j in range(m - 2, -1, -1):
-                f = c * w[j + 1]
-                w[j] = 1 / (b - f * a)
-                rhs[j] -= f * rhs[j + 1]
-            prev = vl
-            for j in range(m):
-                y = (rhs[j] - a * prev) * w[j]
-                prev = max(y, payoff[j + 1]) if american else y
-                v[j + 1] = prev
+        ab = np.zeros((3, m))
+        ab[0, 1:] = -ai * up
+        ab[1, :] = 1 - ai * di
+        ab[2, :-1] = -ai * lo
+        new = solve_banded((1, 1), ab, rhs)
+        if american:
+            # projected Gauss-Seidel to full convergence (Cryer 1971), from the linear solution;
+            # the boundary values enter through the neighbours, so take them out of rhs again
+            rhs[0] -= ai * lo * vl
+            rhs[-1] -= ai * up * vh
+            full = np.concatenate(([vl], np.maximum(new, payoff[1:-1]), [vh]))
+            a, b, c = -ai * lo, 1 - ai * di, -ai * up
+            for _ in range(100000):
+                old = full.copy()
+                for j in range(1, n - 1):
+                    gs = (rhs[j - 1] - a * full[j - 1] - c * full[j + 1]) / b
+                    full[j] = max(gs, payoff[j])
+                if np.max(np.abs(full - old)) < 1e-15:
+                    break
+            v = full
         else:
-            rhs[0] -= a * vl
-            w = np.empty(m)
-            w[0] = 1 / b
-            for j in range(1, m):
-                f = a * w[j - 1]
-                w[j] = 1 / (b - f * c)
-                rhs[j] -= f * rhs[j - 1]
-            prev = vh
-            for j in range(m - 1, -1, -1):
-                y = (rhs[j] - c * prev) * w[j]
-                prev = max(y, payoff[j + 1]) if american else y
-                v[j + 1] = prev
-        v[0], v[-1] = vl, vh
+            v = np.concatenate(([vl], new, [vh]))
     return v
 
 
+@pytest.fixture
+def small_case():
+    t, r, q, vol, xs = 0.5, 0.05, 0.02, 0.3, math.log(0.95)
+    sd = vol * math.sqrt(t)
+    space = build_space_grid(xs, sd, (r - q - vol * vol / 2) * t, width_sd=4.0, points_per_sd=6)
+    time = build_time_grid(t, 8)
+    return space, time, plan_steps(time, space.h, r, q, vol)
+
+
 @pytest.mark.parametrize("is_put", [True, False])
-@pytest.mark.parametrize("american", [True, False])
-def test_march_direct_matches_its_numpy_twin(
-    rng: np.random.Generator, is_put: bool, american: bool
-) -> None:
-    for _ in range(6):
-        vol, r, q = rng.uniform(0.1, 0.6), rng.uniform(0.0, 0.1), rng.uniform(0.0, 0.08)
-        t = rng.uniform(0.05, 3.0)
-        sd = vol * math.sqrt(t)
-        space = build_space_grid(rng.uniform(-0.3, 0.3), sd, (r - q - vol * vol / 2) * t,
-                                 width_sd=5.0, points_per_sd=rng.uniform(8, 40))
-        time = build_time_grid(t, int(rng.integers(8, 60)))
-        plan = plan_steps(time, space.h, r, q, vol)
-        payoff = payoff_on(space, is_put)
-        v = payoff.copy()
-        bnd = np.empty(time.dt.size)
-        _kernels.march_direct(v, payoff, space.x_min, space.h, plan.dt, plan.theta, plan.lo,
-                              plan.di, plan.up, plan.df_r, plan.df_q, is_put, american, bnd)
-        twin = _twin_march(payoff.copy(), payoff, space.x_min, space.h, plan, is_put, american)
-        # same arithmetic up to rounding (fused multiply-adds, pre-scaled right-hand side)
-        np.testing.assert_allclose(v, twin, rtol=0, atol=1e-13)
-        if american:  # the end values come from math.exp, the payoff from np.exp: 1 ulp apart
-            assert np.all(v >= payoff - 1e-14)
+@pytest.mark.parametrize("american", [False, True])
+def test_march_direct_matches_numpy_twin(small_case, is_put: bool, american: bool) -> None:
+    # common practice: the Brennan-Schwartz sweep and a projected Gauss-Seidel iteration solve
+    # the same discrete complementarity problem; the European case is a banded linear solve.
+    space, time, plan = small_case
+    payoff = payoff_on(space, is_put)
+    v = payoff.copy()
+    bnd = np.empty(plan.dt.size)
+    _kernels.march_direct(v, np.exp(space.x), space.x_min, space.h, plan.dt, plan.theta, plan.lo,
+                          plan.di, plan.up, plan.df_r, plan.df_q, plan.shift, plan.scale, is_put, american, bnd)
+    twin = _twin_march(payoff, space.x_min, space.h, plan, is_put, american)
+    np.testing.assert_allclose(v, twin, rtol=0, atol=1e-12)
+
+
+@pytest.mark.parametrize("is_put", [True, False])
+def test_march_psor_matches_direct_kernel_and_twin(small_case, is_put: bool) -> None:
+    # common practice: PSOR converges to the unique solution of the same problem.
+    space, time, plan = small_case
+    payoff = payoff_on(space, is_put)
+    v = payoff.copy()
+    bnd = np.empty(plan.dt.size)
+    iters = np.zeros(plan.dt.size, dtype=np.int64)
+    failed = _kernels.march_psor(v, np.exp(space.x), space.x_min, space.h, plan.dt, plan.theta,
+                                 plan.lo, plan.di, plan.up, plan.df_r, plan.df_q, plan.shift, plan.scale,
+                                 is_put, True, bnd, -1.0, 1e-14, 100000, iters)
+    assert failed == -1 and iters.min() >= 1
+    twin = _twin_march(payoff, space.x_min, space.h, plan, is_put, True)
+    np.testing.assert_allclose(v, twin, rtol=0, atol=1e-11)
+
+
+def test_locate_boundary_matches_twin() -> None:
+    # Smooth pasting: the gap v - payoff grows like c (x - x*)^2 beyond the boundary, so the
+    # located point is exact for such a gap (common practice for sub-grid boundary location).
+    h, x0, xstar = 0.01, -0.5, -0.2337
+    x = x0 + h * np.arange(80)
+    payoff = np.maximum(1 - np.exp(x), 0.0)
+    v = payoff + np.where(x > xstar, 3.0 * (x - xstar) ** 2, 0.0)
+    got = _kernels.locate_boundary(v, payoff, x0, h, True)
+    assert got == pytest.approx(xstar, abs=1e-12)
+    # twin: the same rule written with NumPy
+    j = int(np.argmax(v[1:] > payoff[1:])) + 1
+    s1, s2 = np.sqrt(v[j] - payoff[j]), np.sqrt(v[j + 1] - payoff[j + 1])
+    assert got == pytest.approx(x[j] - s1 / (s2 - s1) * h, abs=1e-14)
+    # no exercise region
+    assert math.isnan(_kernels.locate_boundary(payoff + 1.0, payoff, x0, h, True))
+
+
+def test_thomas_repeat_matches_scipy(rng: np.random.Generator) -> None:
+    # Source: scipy.linalg.solve_banded as the independent tridiagonal solver.
+    n = 50
+    rhs = rng.normal(size=n)
+    a, b, c = -0.7, 2.5, -0.6
+    out = np.empty(n)
+    _kernels.thomas_repeat(rhs, a, b, c, 3, out)
+    ab = np.zeros((3, n))
+    ab[0, 1:], ab[1, :], ab[2, :-1] = c, b, a
+    np.testing.assert_allclose(out, solve_banded((1, 1), ab, rhs), rtol=1e-13, atol=1e-14)
 
 
 @pytest.mark.parametrize("n", [5, 40, 700])
@@ -120,26 +165,24 @@ def _twin_read(values, payoff, x_min, h, x_spot, american):  # noqa: ANN001, ANN
 
 @pytest.mark.parametrize("is_put", [True, False])
 def test_read_cubic_matches_its_twin(rng: np.random.Generator, is_put: bool) -> None:
-    vol, t = 0.3, 1.5
-    r, q = (0.06, 0.01) if is_put else (0.02, 0.08)  # both with an exercise region on the grid
-    sd = vol * math.sqrt(t)
-    space = build_space_grid(0.0, sd, (r - q - vol * vol / 2) * t, width_sd=4.0, points_per_sd=20)
-    time = build_time_grid(t, 40)
-    plan = plan_steps(time, space.h, r, q, vol)
-    payoff = payoff_on(space, is_put)
-    v = payoff.copy()
-    bnd = np.empty(time.dt.size)
-    _kernels.march_direct(v, payoff, space.x_min, space.h, plan.dt, plan.theta, plan.lo,
-                          plan.di, plan.up, plan.df_r, plan.df_q, is_put, True, bnd)
+    # an American-like profile: the payoff on the exercise side of x*, payoff plus a smooth
+    # gap growing like (x - x*)^2 beyond it (smooth pasting)
+    h = 0.01
+    x = -1.0 + h * np.arange(201)
+    payoff = np.maximum(1.0 - np.exp(x), 0.0) if is_put else np.maximum(np.exp(x) - 1.0, 0.0)
+    xb = -0.3237 if is_put else 0.4121
+    d = (x - xb) if is_put else (xb - x)
+    gap = np.where(d > 0, 0.5 * d**2 + 0.1 * d**3, 0.0)
+    values = payoff + gap
     n_ex = 0
-    for x in rng.uniform(space.x_min + 2 * space.h, space.x_max - 2 * space.h, 200):
+    for xs in rng.uniform(x[2], x[-3], 300):
         for american in (True, False):
-            got = _kernels.read_cubic(v, payoff, space.x_min, space.h, x, american)
-            want = _twin_read(v, payoff, space.x_min, space.h, x, american)
+            got = _kernels.read_cubic(values, payoff, x[0], h, xs, american)
+            want = _twin_read(values, payoff, x[0], h, xs, american)
             assert got[3] == want[3]
             np.testing.assert_allclose(got[:3], want[:3], rtol=1e-9, atol=1e-9)
             n_ex += got[3]
-    assert n_ex > 0  # the exercise branch was exercised
+    assert n_ex > 0  # the exercise branch was taken
 
 
 @pytest.mark.parametrize("step", [1, -1])

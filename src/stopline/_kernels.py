@@ -5,15 +5,17 @@ Every function here works on plain float64 arrays and scalars only, and is compi
 orchestration (grids, coefficients, results) lives in the other modules; the tests hold a
 plain-NumPy twin of each kernel.
 
-Notation. Values are dimensionless (option value divided by the strike) on nodes
-``x_j = ln(S_j / K)``, ``j = 0 .. n-1``, uniformly spaced. One theta-scheme step from level
-``tau`` to ``tau + dt`` solves, on the interior nodes,
+Notation. Values are dimensionless (option value divided by the strike) on uniformly spaced
+nodes ``y_j``, ``j = 0 .. n-1``, of the drift-free frame ``y = ln(S / K) + M(tau)`` with
+``M(tau) = int_0^tau (r - q - vol^2 / 2)`` (see :mod:`stopline.operator`). At step ``k`` a node
+stands for the spot ``S_j / K = e^{y_j} shift_k`` with ``shift_k = e^{-M(tau_k)}``. One
+theta-scheme step from level ``tau`` to ``tau + dt`` solves, on the interior nodes,
 
     (1 - theta dt L) v_new = (1 + (1 - theta) dt L) v_old,
     (L v)_j = lo v_{j-1} + di v_j + up v_{j+1},
 
 with Dirichlet values at both ends, then (American) the complementarity problem
-``v_new >= payoff``.
+``v_new >= payoff(e^{y} shift_k)``.
 """
 
 from __future__ import annotations
@@ -24,6 +26,8 @@ import numpy as np
 from numba import njit
 
 __all__ = [
+    "obstacle",
+    "far_value",
     "far_values",
     "march_direct",
     "march_psor",
@@ -31,30 +35,53 @@ __all__ = [
     "read_cubic",
     "thomas_repeat",
     "thomas_repeat_fixed_point",
+    "dividend_jump",
+    "value_after_drop",
 ]
 
 
 @njit(cache=True)
-def far_values(s_lo, s_hi, df_r, df_q, is_put, american):
-    """Dirichlet values at the low and high ends of the grid at one level.
+def far_value(s, df_r, df_q, is_put, american):
+    """Dirichlet value at a grid end at spot ``s`` (in units of the strike).
 
-    The European asymptote is the discounted forward payoff (the option is certain to end in
-    the money at one end and worthless at the other); an American option is floored by its
-    intrinsic value.
+    Far from the strike the option is certain to end in or out of the money, so its value is
+    the discounted forward payoff, floored at zero; an American option is also floored by its
+    intrinsic value. The same rule serves both ends and grids that do not reach the strike.
     """
     if is_put:
-        lo = df_r - s_lo * df_q
-        if lo < 0.0:
-            lo = 0.0
-        if american and 1.0 - s_lo > lo:
-            lo = 1.0 - s_lo
-        return lo, 0.0
-    hi = s_hi * df_q - df_r
-    if hi < 0.0:
-        hi = 0.0
-    if american and s_hi - 1.0 > hi:
-        hi = s_hi - 1.0
-    return 0.0, hi
+        v = df_r - s * df_q
+        e = 1.0 - s
+    else:
+        v = s * df_q - df_r
+        e = s - 1.0
+    if v < 0.0:
+        v = 0.0
+    if american and e > v:
+        v = e
+    return v
+
+
+@njit(cache=True)
+def obstacle(ex, shift, is_put, out):
+    """Exercise value / strike on the nodes at one level: ``max(+-(1 - e^{y} shift), 0)``."""
+    n = ex.shape[0]
+    if is_put:
+        for j in range(n):
+            e = 1.0 - ex[j] * shift
+            out[j] = e if e > 0.0 else 0.0
+    else:
+        for j in range(n):
+            e = ex[j] * shift - 1.0
+            out[j] = e if e > 0.0 else 0.0
+
+
+@njit(cache=True)
+def far_values(s_lo, s_hi, df_r, df_q, is_put, american):
+    """Dirichlet values at the low and high ends of the grid at one level."""
+    return (
+        far_value(s_lo, df_r, df_q, is_put, american),
+        far_value(s_hi, df_r, df_q, is_put, american),
+    )
 
 
 @njit(cache=True)
@@ -103,25 +130,30 @@ def locate_boundary(v, payoff, x0, h, is_put):
 
 
 @njit(cache=True, fastmath={"contract"})
-def march_direct(v, payoff, x0, h, dt, theta, lo, di, up, df_r, df_q, is_put, american, bnd):
+def march_direct(
+    v, ex, x0, h, dt, theta, lo, di, up, df_r, df_q, shift, scale, is_put, american, bnd
+):
     """March ``v`` through all steps with the Brennan-Schwartz direct sweep.
 
     Parameters
     ----------
     v : ndarray, shape (n,)
         Values at the first level; overwritten with the values at the last level.
-    payoff : ndarray, shape (n,)
-        Exercise value on the nodes.
+    ex : ndarray, shape (n,)
+        ``e^{y_j}`` on the nodes.
     x0, h : float
-        First node and spacing of the uniform log-moneyness grid.
-    dt, theta, lo, di, up, df_r, df_q : ndarray, shape (n_steps,)
+        First node and spacing of the uniform grid in ``y``.
+    dt, theta, lo, di, up, df_r, df_q, shift, scale : ndarray, shape (n_steps,)
         Per step: length, implicitness (1 fully implicit, 0.5 Crank-Nicolson), operator
-        coefficients, and the discount factors for rate and yield from expiry to the new
-        level (for the far-field values).
+        coefficients, the discount factors for rate and yield from expiry to the new level
+        (for the far-field values), ``e^{-M(tau)}`` at the new level, and the factor by which
+        ``v`` is scaled at the new level (``1 / df_r`` when the operator leaves out the
+        discounting term, 1 otherwise): the exercise and far-field values are scaled alike.
     is_put, american : bool
         Contract flags. For a European option the sweep is a plain Thomas solve.
     bnd : ndarray, shape (n_steps,)
-        Written: the critical log-moneyness after each step (NaN if no exercise region).
+        Written: the critical log-moneyness ``ln(S*/K)`` after each step (NaN if no exercise
+        region).
 
     Notes
     -----
@@ -132,27 +164,33 @@ def march_direct(v, payoff, x0, h, dt, theta, lo, di, up, df_r, df_q, is_put, am
     Speed. The coefficients are constant in space, so the reciprocal pivots
     ``w_j = 1 / (b - a c w_{j+1})`` converge geometrically to a fixed point; once two in a row
     are equal in floating point every later one is too (same map, same input), and the rest of
-    the elimination needs no division. The right-hand side is scaled by the pivot during the
-    elimination, so the substitution is one fused multiply-add and one ``max`` per node. What
-    remains are two serial recurrences per step (elimination, substitution), a few cycles of
-    latency per node each, which is the floor of any tridiagonal direct solve. The projected
-    substitution is split by region (:func:`_substitute_projected`) so that its chain is one
-    fused multiply-add per node, the ``max`` leaving the critical path; the elimination in the
-    fixed-point region goes two nodes at a time.
+    the elimination needs no division; there it goes two nodes at a time, which halves the
+    serial latency of its recurrence. The right-hand side is scaled by the pivot during the
+    elimination, so the substitution is one fused multiply-add per node, and it is split by
+    region (:func:`_substitute_projected`) so that the ``max`` stays off the critical path.
+    What remains is about a fused multiply-add of latency per node for each of the two
+    sweeps, the floor of a tridiagonal direct solve.
     """
     n = v.shape[0]
     rhs = np.empty(n)  # right-hand side, then (after elimination) right-hand side x pivot
     w = np.empty(n)  # reciprocal pivots
     aw = np.empty(n)  # off-diagonal x pivot, the substitution's coefficient
-    s_lo = math.exp(x0)
-    s_hi = math.exp(x0 + (n - 1) * h)
+    payoff = np.empty(n)
     for k in range(dt.shape[0]):
+        sk = shift[k]
         ae = (1.0 - theta[k]) * dt[k]
         ai = theta[k] * dt[k]
         lk = lo[k]
         d = di[k]
         u = up[k]
-        vl, vh = far_values(s_lo, s_hi, df_r[k], df_q[k], is_put, american)
+        vl, vh = far_values(ex[0] * sk, ex[n - 1] * sk, df_r[k], df_q[k], is_put, american)
+        vl *= scale[k]
+        vh *= scale[k]
+        if american:
+            obstacle(ex, sk, is_put, payoff)
+            if scale[k] != 1.0:
+                for j in range(n):
+                    payoff[j] *= scale[k]
         el = ae * lk
         ed = 1.0 + ae * d
         eu = ae * u
@@ -249,7 +287,7 @@ def march_direct(v, payoff, x0, h, dt, theta, lo, di, up, df_r, df_q, is_put, am
                     v[j] = rhs[j] - aw[j] * v[j + 1]
             v[0] = vl
         if american:
-            bnd[k] = locate_boundary(v, payoff, x0, h, is_put)
+            bnd[k] = locate_boundary(v, payoff, x0, h, is_put) + math.log(sk)
         else:
             bnd[k] = math.nan
 
@@ -290,7 +328,7 @@ def _substitute_projected(v, rhs, aw, payoff, start, stop, step):
 
 @njit(cache=True)
 def march_psor(
-    v, payoff, x0, h, dt, theta, lo, di, up, df_r, df_q, is_put, american, bnd,
+    v, ex, x0, h, dt, theta, lo, di, up, df_r, df_q, shift, scale, is_put, american, bnd,
     omega, tol, max_iter, iters,
 ):
     """March ``v`` through all steps with projected successive over-relaxation.
@@ -320,16 +358,23 @@ def march_psor(
     """
     n = v.shape[0]
     rhs = np.empty(n)
-    s_lo = math.exp(x0)
-    s_hi = math.exp(x0 + (n - 1) * h)
+    payoff = np.empty(n)
     failed = -1
     for k in range(dt.shape[0]):
+        sk = shift[k]
         ae = (1.0 - theta[k]) * dt[k]
         ai = theta[k] * dt[k]
         lk = lo[k]
         d = di[k]
         u = up[k]
-        vl, vh = far_values(s_lo, s_hi, df_r[k], df_q[k], is_put, american)
+        vl, vh = far_values(ex[0] * sk, ex[n - 1] * sk, df_r[k], df_q[k], is_put, american)
+        vl *= scale[k]
+        vh *= scale[k]
+        if american:
+            obstacle(ex, sk, is_put, payoff)
+            if scale[k] != 1.0:
+                for j in range(n):
+                    payoff[j] *= scale[k]
         el = ae * lk
         ed = 1.0 + ae * d
         eu = ae * u
@@ -369,7 +414,7 @@ def march_psor(
                 break
         iters[k] = it
         if american:
-            bnd[k] = locate_boundary(v, payoff, x0, h, is_put)
+            bnd[k] = locate_boundary(v, payoff, x0, h, is_put) + math.log(sk)
         else:
             bnd[k] = math.nan
     return failed
@@ -395,6 +440,155 @@ def thomas_repeat(rhs0, a, b, c, n_solves, out):
         out[n - 1] = r[n - 1] * w[n - 1]
         for j in range(n - 2, -1, -1):
             out[j] = (r[j] - c * out[j + 1]) * w[j]
+
+
+
+@njit(cache=True)
+def _value_after(v, x, x0, h, d, df_r, df_q, is_put, american):
+    """Value / strike after the ex-date at ``ln(max(e^x - d, 0))``, read off the nodes ``v``.
+
+    A four-point Lagrange cubic in ``x`` limited to the range of the two bracketing nodes
+    (so a monotone value stays monotone and non-negative); below the first node, the
+    far-field value of :func:`far_value` at the dropped spot.
+    """
+    n = v.shape[0]
+    s = math.exp(x) - d
+    if s <= math.exp(x0):
+        return far_value(s if s > 0.0 else 0.0, df_r, df_q, is_put, american)
+    y = (math.log(s) - x0) / h
+    i = int(math.floor(y))
+    if i > n - 2:
+        i = n - 2
+    j0 = i - 1
+    if j0 < 0:
+        j0 = 0
+    if j0 > n - 4:
+        j0 = n - 4
+    t = y - j0
+    a0 = t - 1.0
+    a1 = t - 2.0
+    a2 = t - 3.0
+    val = (
+        -a0 * a1 * a2 / 6.0 * v[j0]
+        + t * a1 * a2 / 2.0 * v[j0 + 1]
+        - t * a0 * a2 / 2.0 * v[j0 + 2]
+        + t * a0 * a1 / 6.0 * v[j0 + 3]
+    )
+    lo = v[i] if v[i] < v[i + 1] else v[i + 1]
+    hi = v[i] if v[i] > v[i + 1] else v[i + 1]
+    if val < lo:
+        return lo
+    if val > hi:
+        return hi
+    return val
+
+
+@njit(cache=True)
+def _exercise_value(x, pv, is_put):
+    """Exercise value / strike at log-moneyness ``x`` when the spot is ``e^x + pv``."""
+    s = math.exp(x) + pv
+    e = 1.0 - s if is_put else s - 1.0
+    return e if e > 0.0 else 0.0
+
+
+@njit(cache=True)
+def _held_or_exercised(v, x, x0, h, d, pv, df_r, df_q, is_put):
+    w = _value_after(v, x, x0, h, d, df_r, df_q, is_put, True)
+    e = _exercise_value(x, pv, is_put)
+    return w if w > e else e
+
+
+@njit(cache=True)
+def dividend_jump(v, payoff, x0, h, d, pv, df_r, df_q, is_put, american, out):
+    """Values just before an ex-dividend date from those just after.
+
+    ``out_j = v(ln(max(e^{x_j} - d, 0)))`` (the spot drops by ``d``), and for an American
+    option the larger of that and the exercise value at spot ``e^{x_j} + pv`` (exercise just
+    before the drop). The spot model has ``pv = 0``; the escrowed model has ``d = 0`` and
+    ``pv`` the present value of the dividends still to come, including this one.
+
+    Parameters
+    ----------
+    v : ndarray, shape (n,)
+        Value / strike after the ex-date (read only).
+    payoff : ndarray, shape (n,)
+        Exercise value / strike on the nodes at spot ``e^{x_j} + pv`` (American only; the
+        nodes take it exactly, so that the exercise region is found by equality).
+    x0, h : float
+        First node and spacing of the uniform log-moneyness grid.
+    d : float
+        Drop of the spot / strike, >= 0.
+    pv : float
+        Shift of the spot in the exercise value / strike, >= 0.
+    df_r, df_q : float
+        Discount factors for rate and yield from expiry to the ex-date (far-field values).
+    is_put, american : bool
+        Contract flags.
+    out : ndarray, shape (n,)
+        Written: the values before the ex-date.
+
+    Notes
+    -----
+    Where the exercise value overtakes the held value inside a node's cell
+    ``[x_j - h/2, x_j + h/2]``, or the dropped spot reaches zero there (``e^x = d``), the
+    value has a kink off the grid; the node then takes the cell average (the kink located by
+    bisection, two-point Gauss on each side), which
+    keeps the error a smooth function of the spacing so that Richardson extrapolation still
+    works (Pooley, Vetzal and Forsyth 2003, J. Comput. Finance 6(4)).
+    """
+    n = v.shape[0]
+    half = 0.5 * h
+    g = 0.5 / math.sqrt(3.0)
+    x_zero = math.log(d) if d > 0.0 else -math.inf  # the dropped spot reaches zero here
+    for j in range(n):
+        xj = x0 + j * h
+        xl = xj - half
+        xr = xj + half
+        w = _value_after(v, xj, x0, h, d, df_r, df_q, is_put, american)
+        e = payoff[j] if american else 0.0
+        xk = math.nan
+        if american:
+            gl = _value_after(v, xl, x0, h, d, df_r, df_q, is_put, True) - _exercise_value(xl, pv, is_put)
+            gr = _value_after(v, xr, x0, h, d, df_r, df_q, is_put, True) - _exercise_value(xr, pv, is_put)
+            if gl * gr < 0.0:
+                a = xl
+                b = xr
+                for _ in range(40):
+                    m = 0.5 * (a + b)
+                    gm = _value_after(v, m, x0, h, d, df_r, df_q, is_put, True) - _exercise_value(
+                        m, pv, is_put
+                    )
+                    if (gm < 0.0) == (gl < 0.0):
+                        a = m
+                    else:
+                        b = m
+                xk = 0.5 * (a + b)
+        if math.isnan(xk) and xl < x_zero < xr:
+            xk = x_zero
+        if math.isnan(xk):
+            out[j] = w if w > e else e
+            continue
+        total = 0.0
+        for lo, hi in ((xl, xk), (xk, xr)):
+            c = 0.5 * (lo + hi)
+            ln = hi - lo
+            for z in (c - g * ln, c + g * ln):
+                if american:
+                    total += 0.5 * ln * _held_or_exercised(v, z, x0, h, d, pv, df_r, df_q, is_put)
+                else:
+                    total += 0.5 * ln * _value_after(v, z, x0, h, d, df_r, df_q, is_put, False)
+        out[j] = total / h
+
+
+@njit(cache=True)
+def value_after_drop(v, x0, h, d, df_r, df_q, is_put, american, out):
+    """``out_j = v(ln(max(e^{x_j} - d, 0)))``: the held value just before an ex-date.
+
+    As :func:`dividend_jump` without the exercise floor and without cell averaging; the
+    American flag only sets the far-field value below the grid.
+    """
+    for j in range(v.shape[0]):
+        out[j] = _value_after(v, x0 + j * h, x0, h, d, df_r, df_q, is_put, american)
 
 
 @njit(cache=True, fastmath={"contract"})

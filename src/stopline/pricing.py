@@ -14,10 +14,17 @@ from .daycount import DEFAULT_DAY_COUNT
 from .errors import InputError
 from .exercise import ExerciseMethod, ProjectedSOR, get_method
 from .greeks import GridReadout, read_at_spot, theta_from_pde
-from .grid import SpaceGrid, TimeGrid, build_space_grid, build_time_grid
+from .grid import SpaceGrid, TimeGrid, build_space_grid
 from .market import Market
-from .operator import max_monotone_spacing
-from .solve import GridSolution, PDEProblem, solve
+from .operator import choose_frame
+from .solve import (
+    GridSolution,
+    PDEProblem,
+    problem_from_market,
+    solve,
+    theta_at_valuation,
+    time_grid_for,
+)
 
 __all__ = [
     "AccuracyPreset",
@@ -63,16 +70,26 @@ class AccuracyPreset:
 #: Accuracy presets. Each solves on a grid and on the grid with half the resolution in space
 #: and time, and extrapolates (Richardson); see ``validation/`` for the measured errors.
 #: Tuned on ``benchmarks/run.py``'s 200 seeded typical contracts against a 12001 x 6000 grid
-#: reference: max error / strike 7.7e-5 (fast), 5.1e-7 (standard), 9.9e-8 (fine: its 1e-8
-#: target is not met; the exercise boundary between nodes limits the pair to order ~1.8).
+#: reference: max error / strike 7.7e-5 (fast), 6.9e-7 (standard), 9.9e-8 (fine: its 1e-8
+#: target is not met; the exercise boundary between nodes limits the pair to order ~1.8, and
+#: erratically, so neighbouring resolutions can be several times worse).
 #: Space resolution dominates the error; time levels beyond these barely move it. Narrowing
 #: the domain from 6 to 4 sd moves standard prices by < 1e-10 x K, to 3 sd fast ones by
 #: < 4e-7 x K; fine keeps 6.5 sd so that a put's boundary near expiry, K min(1, r/q), is on it.
 PRESETS: dict[str, AccuracyPreset] = {
     "fast": AccuracyPreset("fast", 1e-4, 16.0, 3.0, 32, 0.08),
-    "standard": AccuracyPreset("standard", 1e-6, 56.0, 4.0, 100, 0.012),
+    "standard": AccuracyPreset("standard", 1e-6, 64.0, 4.0, 100, 0.012),
     "fine": AccuracyPreset("fine", 1e-8, 160.0, 6.5, 400, 0.008),
 }
+
+
+#: Most nodes of the coarse grid of a preset (the fine grid has about twice as many); a
+#: safety net that typical and extreme contracts alike stay well inside; ``price`` warns if
+#: it is reached.
+MAX_COARSE_NODES = 10_000
+#: Below this ``vol * sqrt(T)`` the zero-volatility limit is used (its error is below about
+#: ``0.4 * vol * sqrt(T)`` of the spot, i.e. under 1e-6 of the strike near the money).
+MIN_SD_FOR_GRID = 2e-6
 
 
 @dataclass(frozen=True)
@@ -192,26 +209,48 @@ class Result:
 def _resolve_grid(
     problem: PDEProblem, accuracy: str, grid: GridSpec | tuple[int, int] | None
 ) -> tuple[SpaceGrid, TimeGrid, str]:
+    """The coarse grid of the Richardson pair, in the frame that suits the problem."""
     sd = problem.vol * math.sqrt(problem.expiry)
-    drift = (problem.rate - problem.div_yield - 0.5 * problem.vol**2) * problem.expiry
-    h_max = max_monotone_spacing(problem.rate, problem.div_yield, problem.vol)
+    mu = problem.rate - problem.div_yield - 0.5 * problem.vol**2
+    drift = mu * problem.expiry
     if grid is not None:
         spec = grid if isinstance(grid, GridSpec) else GridSpec(*grid)
-        preset = PRESETS["standard"]
-        coarse_n = spec.space_points // 2 + 1
-        space = build_space_grid(
-            problem.x_spot, sd, drift, width_sd=preset.width_sd, n_points=coarse_n, h_max=h_max
-        )
-        time = build_time_grid(problem.expiry, max(spec.time_levels // 2, 2))
-        return space, time, "custom"
-    name = check_choice("accuracy", accuracy, tuple(PRESETS))
-    preset = PRESETS[name]
-    space = build_space_grid(
-        problem.x_spot, sd, drift, width_sd=preset.width_sd,
-        points_per_sd=0.5 * preset.points_per_sd, h_max=2.0 * min(h_max, preset.max_spacing),
-    )
-    time = build_time_grid(problem.expiry, preset.time_levels // 2)
-    return space, time, name
+        name, width = "custom", PRESETS["standard"].width_sd
+        kwargs: dict = {"n_points": spec.space_points // 2 + 1}
+        levels = max(spec.time_levels // 2, 2)
+    else:
+        name = check_choice("accuracy", accuracy, tuple(PRESETS))
+        preset = PRESETS[name]
+        width, levels = preset.width_sd, preset.time_levels // 2
+        scale = _decay_length(problem.rate, mu, problem.vol) if problem.american else math.inf
+        kwargs = {
+            "points_per_sd": 0.5 * preset.points_per_sd * sd / min(sd, scale),
+            "h_max": 2.0 * preset.max_spacing,
+            "n_max": MAX_COARSE_NODES,
+        }
+    space = build_space_grid(problem.x_spot, sd, drift, width_sd=width, **kwargs)
+    # cash dividends are applied in frame "x" (the dropped spot of a node is a fixed node)
+    if choose_frame(sd, drift, space.h, problem.vol, mu) == "y" and not problem.has_events:
+        space = build_space_grid(problem.x_spot, sd, drift, width_sd=width, frame="y", **kwargs)
+        if problem.american:
+            # steps short enough that the exercise value's kink moves about a node per step
+            levels = max(levels, min(math.ceil(abs(drift) / space.h), 20 * levels))
+    return space, time_grid_for(problem, levels), name
+
+
+def _decay_length(rate: float, mu: float, vol: float) -> float:
+    """Length in ``ln S`` over which an American option's premium decays near its boundary.
+
+    ``1 / |lambda|`` for the roots of ``vol^2/2 l^2 + mu l - r = 0``, the exponents of the
+    perpetual option (Merton 1973). At low volatility this is far shorter than
+    ``vol sqrt(T)``, and the grid must resolve it rather than the spread of the spot.
+    """
+    disc = mu * mu + 2.0 * vol * vol * rate
+    if disc < 0.0:
+        return math.inf
+    root = math.sqrt(disc)
+    lengths = [vol * vol / abs(-mu + sgn * root) for sgn in (-1.0, 1.0) if -mu + sgn * root != 0.0]
+    return min(lengths, default=math.inf)
 
 
 def _expired(option: Option, market: Market, method: ExerciseMethod, t: float) -> Result:
@@ -228,6 +267,41 @@ def _expired(option: Option, market: Market, method: ExerciseMethod, t: float) -
                        warnings=("expiry is zero: intrinsic value, no grid solved",))
     return Result(intrinsic, delta, 0.0, 0.0, 0.0, ExerciseBoundary(empty, empty), stats,
                   option, market, t, "exact")
+
+
+def _zero_vol_limit(option: Option, market: Market, method: ExerciseMethod, t: float) -> Result:
+    """Deterministic spot ``S e^{(r-q)u}``: the best of exercising at any ``u`` in [0, T].
+
+    Exercise at ``u`` is worth ``e^{-ru} payoff(S e^{(r-q)u})``; for a put this is
+    ``K e^{-ru} - S e^{-qu}``, smooth with at most one stationary point
+    ``u* = ln(qS / (rK)) / (q - r)``, so the maximum is at 0, T or u*. A European option
+    takes ``u = T`` only.
+    """
+    s, k, r, q = market.spot, option.strike, market.rate, market.div_yield
+    sign = 1.0 if option.is_put else -1.0
+
+    def worth(u: float) -> float:
+        return sign * (k * math.exp(-r * u) - s * math.exp(-q * u))
+
+    candidates = [t]
+    if option.is_american:
+        candidates.append(0.0)
+        if q != r and r * q > 0.0 and q * s / (r * k) > 0.0:
+            u = math.log(q * s / (r * k)) / (q - r)
+            if 0.0 < u < t:
+                candidates.append(u)
+    best_u = max(candidates, key=worth)
+    value = max(worth(best_u), 0.0)
+    delta = -sign * math.exp(-q * best_u) if value > 0.0 else 0.0
+    exercised = value > 0.0 and best_u == 0.0
+    theta = theta_from_pde(s, value, delta, 0.0, r, q, market.vol, exercised)
+    empty = np.empty(0)
+    stats = SolveStats(0, 0, 0, 0, 0, method.name, 0, 0, (s, s), warnings=(
+        f"vol * sqrt(T) = {market.vol * math.sqrt(t):.2g} is below {MIN_SD_FOR_GRID:g}: priced by "
+        "the zero-volatility limit (best deterministic exercise time), no grid solved",
+    ))
+    return Result(value, delta, 0.0, theta, 0.4 * market.vol * math.sqrt(t) * s, ExerciseBoundary(empty, empty),
+                  stats, option, market, t, "exact")
 
 
 def price(
@@ -285,19 +359,34 @@ def price(
         return _expired(option, market, solver, t)
     k = option.strike
     american = option.is_american
-    warnings: list[str] = []
-    if american and _two_boundaries_possible(option.is_put, market.rate, market.div_yield):
+    problem = problem_from_market(option, market, t)
+    warnings: list[str] = list(problem.warnings)
+    if american and _two_boundaries_possible(option.is_put, problem.rate, problem.div_yield):
         if solver.name == "direct":
             solver = ProjectedSOR()
             warnings.append(
                 "rate and yield both negative: the exercise region may not touch the grid end, "
                 "so projected SOR was used instead of the direct sweep"
             )
-    problem = PDEProblem(
-        option.is_put, american, t, market.rate, market.div_yield, market.vol,
-        math.log(market.spot / k),
-    )
+    if problem.vol * math.sqrt(t) < MIN_SD_FOR_GRID:
+        if problem.curves is not None or problem.dividend_tau:
+            raise InputError(
+                "vol", market.vol,
+                f"vol * sqrt(T) below {MIN_SD_FOR_GRID:g} is not supported with cash dividends "
+                "or term structures",
+            )
+        return _zero_vol_limit(option, market, solver, t)
     space_c, time_c, acc_name = _resolve_grid(problem, accuracy, grid)
+    if space_c.n >= MAX_COARSE_NODES:
+        warnings.append(
+            f"the grid reached its cap of {MAX_COARSE_NODES} coarse nodes; spacing is wider than "
+            "the preset asks, so accuracy may be below its target"
+        )
+    if american and space_c.frame == "y":
+        warnings.append(
+            "very low volatility for the drift: solved in the drift-free frame, where the "
+            "exercise value's kink moves between nodes; American accuracy may be below target"
+        )
     space_f = space_c.refined()
     time_f = time_c.refined()
     coarse = solve(problem, space_c, time_c, solver)
@@ -308,12 +397,18 @@ def price(
     delta = rf.delta + (rf.delta - rc.delta) / 3.0
     gamma = rf.gamma + (rf.gamma - rc.gamma) / 3.0
     if rf.exercised:
-        value, delta, gamma = rf.value, rf.delta, rf.gamma
-    theta = theta_from_pde(
-        market.spot, value, delta, gamma, market.rate, market.div_yield, market.vol, rf.exercised
-    )
+        # exercised at once: the intrinsic value of the real spot (also under escrowed dividends)
+        value = max(k - market.spot, 0.0) if option.is_put else max(market.spot - k, 0.0)
+        delta, gamma = rf.delta, rf.gamma
+    # extrapolation may step below a bound the true price obeys; the bound is then closer
+    floor = max(k - market.spot, 0.0) if option.is_put else max(market.spot - k, 0.0)
+    value = max(value, floor if american else 0.0)
+    # likewise delta: within [-1, 0] for a put and [0, 1] for a call (e^{-qT} when q < 0)
+    dmax = max(1.0, math.exp(-problem.div_yield * t))
+    delta = min(max(delta, -dmax), 0.0) if option.is_put else min(max(delta, 0.0), dmax)
+    theta = theta_at_valuation(problem, market.spot, k, value, delta, gamma, rf.exercised)
     err = abs(rf.value - rc.value) / 3.0
-    boundary = ExerciseBoundary(fine.time.tau.copy(), k * np.exp(fine.report.boundary_x))
+    boundary = ExerciseBoundary(fine.boundary_times.copy(), k * np.exp(fine.report.boundary_x))
     stats = SolveStats(
         space_points=space_f.n,
         time_levels=time_f.levels,
@@ -323,7 +418,7 @@ def price(
         method=solver.name,
         psor_iterations=coarse.report.iterations + fine.report.iterations,
         psor_max_sweeps=max(coarse.report.max_iterations, fine.report.max_iterations),
-        domain=(k * math.exp(space_f.x_min), k * math.exp(space_f.x_max)),
+        domain=(k * math.exp(fine.x_min), k * math.exp(fine.x_min + (space_f.n - 1) * space_f.h)),
         warnings=tuple(warnings),
     )
     return Result(value, delta, gamma, theta, err, boundary, stats, option, market, t, acc_name)
@@ -331,8 +426,7 @@ def price(
 
 def _read(sol: GridSolution, problem: PDEProblem, strike: float) -> GridReadout:
     return read_at_spot(
-        sol.values, sol.payoff, sol.space.x_min, sol.space.h, problem.x_spot, strike,
-        problem.american,
+        sol.values, sol.payoff, sol.x_min, sol.space.h, problem.x_spot, strike, problem.american
     )
 
 

@@ -8,8 +8,11 @@ from __future__ import annotations
 
 import typer
 
+from . import crosscheck as _crosscheck
 from . import demo as _demo
+from . import implied as _implied
 from . import price as _price
+from . import validate as _validate
 
 app = typer.Typer(
     name="stopline",
@@ -20,6 +23,9 @@ app = typer.Typer(
 )
 app.command("price")(_price.price_cmd)
 app.command("demo")(_demo.demo_cmd)
+app.command("implied")(_implied.implied_cmd)
+app.command("crosscheck")(_crosscheck.crosscheck_cmd)
+app.command("validate")(_validate.validate_cmd)
 
 
 def main() -> None:
