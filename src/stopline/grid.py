@@ -17,6 +17,7 @@ makes a new kink) also starts with implicit half steps.
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass
 
@@ -202,9 +203,22 @@ def build_time_grid(
     """
     if rannacher is None:
         rannacher = min(4, max(1, levels // 8))
+    unit_tau, unit_dt, theta = _unit_time_grid(levels, min(rannacher, levels), float(grading))
+    return TimeGrid(levels, expiry * unit_tau, expiry * unit_dt, theta.copy())
+
+
+@functools.lru_cache(maxsize=256)
+def _unit_time_grid(
+    levels: int, rannacher: int, grading: float
+) -> tuple[FloatArray, FloatArray, FloatArray]:
+    """Levels, steps and implicitness for ``T = 1`` (read-only; scaled by the expiry).
+
+    Every option priced at one preset shares these arrays, so they are built once per
+    process; scaling by the expiry is exact up to rounding.
+    """
     k = np.arange(levels + 1, dtype=np.float64)
-    tau_levels = expiry * (k / levels) ** grading
-    r = min(rannacher, levels)
+    tau_levels = (k / levels) ** grading
+    r = rannacher
     # the first r intervals each become two half steps: insert their midpoints
     mids = 0.5 * (tau_levels[:r] + tau_levels[1 : r + 1])
     tau_all = np.concatenate((tau_levels[: r + 1], mids, tau_levels[r + 1 :]))
@@ -212,7 +226,10 @@ def build_time_grid(
     dt = np.diff(tau_all)
     theta = np.full(dt.shape, 0.5)
     theta[: 2 * r] = 1.0
-    return TimeGrid(levels, tau_all[1:].copy(), dt, theta)
+    tau = tau_all[1:].copy()
+    for arr in (tau, dt, theta):
+        arr.flags.writeable = False
+    return tau, dt, theta
 
 
 @dataclass(frozen=True)

@@ -122,6 +122,9 @@ def plan_steps(
     frame : {"x", "y"}
         Coordinate of the grid (module docstring).
     """
+    if not isinstance(rate, PiecewiseConstant) and not isinstance(div_yield, PiecewiseConstant) \
+            and not isinstance(vol, PiecewiseConstant):
+        return _plan_flat(time, h, float(rate), float(div_yield), float(vol), frame)
     expiry = time.expiry
     tau_prev = time.tau - time.dt
     t_mid = np.maximum(expiry - 0.5 * (time.tau + tau_prev), 0.0)
@@ -147,6 +150,25 @@ def plan_steps(
         df_q=np.exp(-int_q),
         shift=shift,
         scale=np.exp(int_r) if frame == "y" else np.ones_like(time.dt),
+    )
+
+
+def _plan_flat(
+    time: TimeGrid, h: float, rate: float, div_yield: float, vol: float, frame: str
+) -> StepPlan:
+    """:func:`plan_steps` for flat data: the same numbers, without per-step curve look-ups."""
+    m = time.dt.shape[0]
+    lo, di, up = coefficients(h, rate, div_yield, vol, frame)
+    int_r = rate * time.tau
+    int_q = div_yield * time.tau
+    if frame == "y":
+        shift = np.exp(-(int_r - int_q - 0.5 * (vol**2 * time.tau)))
+        scale = np.exp(int_r)
+    else:
+        shift = scale = np.ones(m)
+    return StepPlan(
+        tau=time.tau, dt=time.dt, theta=time.theta, lo=np.full(m, lo), di=np.full(m, di),
+        up=np.full(m, up), df_r=np.exp(-int_r), df_q=np.exp(-int_q), shift=shift, scale=scale,
     )
 
 

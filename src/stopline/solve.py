@@ -152,10 +152,13 @@ class GridSolution:
         return self.space.x - self.drift
 
 
-def payoff_on(space: SpaceGrid, is_put: bool, shift: float = 1.0) -> FloatArray:
-    """Exercise value / strike on the nodes at a level where ``S / K = e^y shift``."""
+def payoff_on(
+    space: SpaceGrid, is_put: bool, shift: float = 1.0, ex: FloatArray | None = None
+) -> FloatArray:
+    """Exercise value / strike on the nodes at a level where ``S / K = e^y shift``
+    (``ex``: ``e^y`` on the nodes, if already at hand)."""
     out = np.empty(space.n)
-    _kernels.obstacle(np.exp(space.x), shift, is_put, out)
+    _kernels.obstacle(np.exp(space.x) if ex is None else ex, shift, is_put, out)
     if shift == 1.0 and space.has_strike:
         out[space.strike_index] = 0.0
     return out
@@ -179,11 +182,12 @@ def solve(
         plain linear solve).
     """
     plan = plan_steps(time, space.h, *problem.coefficients, space.frame)
-    v = payoff_on(space, problem.is_put)
+    ex = np.exp(space.x)
+    v = payoff_on(space, problem.is_put, ex=ex)
     if not problem.has_events:
-        report = method.march(v, np.exp(space.x), space, plan, problem.is_put, problem.american)
+        report = method.march(v, ex, space, plan, problem.is_put, problem.american)
         v /= plan.scale[-1]
-        payoff = payoff_on(space, problem.is_put, float(plan.shift[-1]))
+        payoff = payoff_on(space, problem.is_put, float(plan.shift[-1]), ex=ex)
         return GridSolution(space, time, v, payoff, plan.drift, report)
     if space.frame != "x":
         raise ValueError("cash dividends are solved in frame 'x'")
