@@ -216,7 +216,7 @@ def tree_methods() -> tuple[str, dict]:
 
         methods = {"BBSR": (trees.bbsr_price, lambda n: n)}
         if hasattr(trees, "lr_extrapolated_price"):
-            methods["LR+Richardson"] = (trees.lr_extrapolated_price, lambda n: n // 2 - 1)
+            methods["LR-extrap"] = (trees.lr_extrapolated_price, lambda n: n // 2 - 1)
         return "stopline.reference.trees", methods
     except ImportError:
         from _tree import bbsr_price
