@@ -186,7 +186,8 @@ def march_direct(
         vl, vh = far_values(ex[0] * sk, ex[n - 1] * sk, df_r[k], df_q[k], is_put, american)
         vl *= scale[k]
         vh *= scale[k]
-        if american:
+        # the exercise value only changes with the frame's shift and scale (never in frame x)
+        if american and (k == 0 or sk != shift[k - 1] or scale[k] != scale[k - 1]):
             obstacle(ex, sk, is_put, payoff)
             if scale[k] != 1.0:
                 for j in range(n):
