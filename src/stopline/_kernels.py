@@ -61,9 +61,14 @@ def locate_boundary(v, payoff, x0, h, is_put):
 
     The exercise region is the run of interior nodes, starting at the grid end where the
     option is deep in the money, on which ``v == payoff`` and the payoff is positive. Beyond
-    its last node the gap ``g = v - payoff`` grows like ``c (x - x*)^2`` (smooth pasting), so
-    ``sqrt(g)`` is close to linear in ``x``; the root of the line through the first two
-    positive gaps places ``x*`` below the grid spacing.
+    it the gap ``g = v - payoff`` grows like ``c (x - x*)^2`` (smooth pasting), so ``sqrt(g)``
+    is close to linear in ``x`` and the root of a line through two of its values places
+    ``x*`` below the grid spacing. The first held node's gap is distorted by the projection
+    onto the payoff (its neighbour was clamped), so the line goes through the second and
+    third held nodes; the first two are used if the grid leaves no third. The discrete
+    problem may exercise a node or two on which the exact solution is (barely) held, so
+    ``x*`` may lie up to three spacings inside the run of exercised nodes; it is kept on the
+    side of the strike where the payoff is positive.
     """
     n = v.shape[0]
     if is_put:
@@ -72,9 +77,6 @@ def locate_boundary(v, payoff, x0, h, is_put):
             j += 1
         if j == 1 or j >= n - 2:
             return math.nan
-        g1 = v[j] - payoff[j]
-        g2 = v[j + 1] - payoff[j + 1]
-        xa = x0 + j * h
         step = h
     else:
         j = n - 2
@@ -82,22 +84,25 @@ def locate_boundary(v, payoff, x0, h, is_put):
             j -= 1
         if j == n - 2 or j <= 1:
             return math.nan
-        g1 = v[j] - payoff[j]
-        g2 = v[j - 1] - payoff[j - 1]
-        xa = x0 + j * h
         step = -h
-    if g1 < 0.0:
-        g1 = 0.0
-    if g2 < 0.0:
-        g2 = 0.0
-    s1 = math.sqrt(g1)
-    s2 = math.sqrt(g2)
-    if s2 <= s1:
-        return xa - step
-    frac = s1 / (s2 - s1)
-    if frac > 1.0:
-        frac = 1.0
-    return xa - frac * step
+    i = 1 if (j + 3 <= n - 1 if is_put else j - 3 >= 0) else 0
+    sgn = 1 if is_put else -1
+    ga = v[j + sgn * i] - payoff[j + sgn * i]
+    gb = v[j + sgn * (i + 1)] - payoff[j + sgn * (i + 1)]
+    sa = math.sqrt(ga) if ga > 0.0 else 0.0
+    sb = math.sqrt(gb) if gb > 0.0 else 0.0
+    # position in units of step from the first held node j
+    t = i - sa / (sb - sa) if sb > sa else -0.5
+    if t < -3.0:
+        t = -3.0
+    elif t > 0.0:
+        t = 0.0
+    x = x0 + j * h + t * step
+    if is_put and x > 0.0:
+        x = 0.0
+    elif not is_put and x < 0.0:
+        x = 0.0
+    return x
 
 
 @njit(cache=True)
