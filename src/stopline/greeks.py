@@ -1,15 +1,32 @@
-"""Reading the price, delta and gamma at the spot off a grid solution, and theta from the PDE.
+"""Greeks from grid solutions: read-off at the spot, theta from the PDE, vega and rho by bumps.
 
-The grid carries the value on nodes in ``x = ln(S / K)``. At the spot ``x_s`` the four nearest
-nodes define a cubic (Lagrange) interpolant; its value, first and second derivative give
-``v``, ``v_x`` and ``v_xx`` (errors O(h^4), O(h^3), O(h^2), below the scheme's O(h^2)), and
+How each number in :class:`~stopline.pricing.Result` is computed:
 
-    price = K v,   delta = v_x / e^x,   gamma = (v_xx - v_x) / (K e^{2x}).
+- **price, delta, gamma.** The grid carries the value on nodes in ``x = ln(S / K)``. The six
+  nodes nearest the spot define a quintic (Lagrange) interpolant; its value, first and second
+  derivative at the spot, by Fornberg's (1988) weights, give ``v``, ``v_x`` and ``v_xx`` with
+  interpolation errors O(h^6), O(h^5), O(h^4), far below the scheme's O(h^2), so the
+  Richardson step of two grids cancels the scheme's error cleanly (a cubic's O(h^2) error in
+  ``v_xx`` depends on where the spot falls between nodes and does not cancel). Then
+  ``price = K v``, ``delta = v_x / e^x``, ``gamma = (v_xx - v_x) / (K e^{2x})``. Where the
+  spot lies in the exercise region (beyond the located critical spot) the value is the payoff,
+  delta is -1 or +1 and gamma 0; near the boundary the stencil is moved onto held nodes so that
+  it does not straddle the kink in the second derivative.
+- **theta** (calendar time) comes from the equation itself at the valuation level: where the
+  option is held, ``V_t = -(1/2 s^2 S^2 gamma + (r - q) S delta - r V)``; where it is
+  exercised, zero. It is as accurate as delta and gamma; a difference quotient over the last
+  (longest, on a graded grid) time step would be first order.
+- **vega, rho** by central differences ``(V(p + dp) - V(p - dp)) / (2 dp)`` of prices
+  re-solved with the volatility or the rate bumped (:data:`VOL_BUMP`, :data:`RATE_BUMP`),
+  on grids built once from the unbumped inputs and reused, so that the bump moves no node.
+  See :func:`central_difference`.
 
-Theta (calendar time) comes from the equation itself at the valuation level: where the option
-is held, ``V_t = -(1/2 s^2 S^2 gamma + (r - q) S delta - r V)``; where it is exercised, the
-value is the payoff and theta is zero. This is second order, like delta and gamma; a
-difference quotient over the last (longest, on a graded grid) time step would be first order.
+References
+----------
+Fornberg, B. (1988), Generation of finite difference formulas on arbitrarily spaced grids,
+Mathematics of Computation 51(184).
+Richardson, L. F. (1911), The approximate arithmetical solution by finite differences of
+physical problems, Phil. Trans. R. Soc. A 210.
 """
 
 from __future__ import annotations
@@ -17,9 +34,32 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
+import numpy as np
+
 from ._types import FloatArray
 
-__all__ = ["GridReadout", "read_at_spot", "theta_from_pde"]
+__all__ = [
+    "GridReadout",
+    "read_at_spot",
+    "theta_from_pde",
+    "fd_weights",
+    "central_difference",
+    "VOL_BUMP",
+    "RATE_BUMP",
+    "STENCIL",
+]
+
+#: Nodes in the read-off stencil (a quintic).
+STENCIL = 6
+#: Relative volatility bump for vega: ``dv = VOL_BUMP * vol``. The truncation error of the
+#: central difference, ``dv^2 / 6 * d3V/dvol3``, stays below 1.5e-4 of vega over typical
+#: contracts; a smaller bump divides the grid's non-smooth dependence on the inputs (nodes
+#: entering or leaving the exercise region) by a smaller number, and American vegas at
+#: ``standard`` lose accuracy (measured: 1.2e-3 relative with a 0.1 % bump, 4e-4 with 1 %).
+VOL_BUMP = 1e-2
+#: Absolute rate bump for rho (truncation error about ``(dr T)^2 / 6`` relative: 2e-7 at one
+#: year, 4e-4 at fifty).
+RATE_BUMP = 1e-3
 
 
 @dataclass(frozen=True)
@@ -31,7 +71,7 @@ class GridReadout:
     value, delta, gamma : float
         Price, dV/dS, d2V/dS2.
     exercised : bool
-        True if the spot lies inside the exercise region (all four stencil nodes exercised).
+        True if the spot lies in the exercise region.
     """
 
     value: float
@@ -40,11 +80,56 @@ class GridReadout:
     exercised: bool
 
 
+def fd_weights(z: float, x: FloatArray, m: int) -> FloatArray:
+    """Weights of derivatives 0..m at ``z`` of the polynomial through nodes ``x``.
+
+    Parameters
+    ----------
+    z : float
+        Where to evaluate.
+    x : ndarray, shape (p,)
+        Distinct nodes.
+    m : int
+        Highest derivative.
+
+    Returns
+    -------
+    ndarray, shape (m + 1, p)
+        Row ``k`` dotted with the nodal values gives the ``k``-th derivative at ``z``.
+
+    References
+    ----------
+    Fornberg, B. (1988), Mathematics of Computation 51(184), 699-706.
+    """
+    p = x.shape[0]
+    c = np.zeros((m + 1, p))
+    c1 = 1.0
+    c4 = x[0] - z
+    c[0, 0] = 1.0
+    for i in range(1, p):
+        mn = min(i, m)
+        c2 = 1.0
+        c5 = c4
+        c4 = x[i] - z
+        for j in range(i):
+            c3 = x[i] - x[j]
+            c2 *= c3
+            if j == i - 1:
+                for k in range(mn, 0, -1):
+                    c[k, i] = c1 * (k * c[k - 1, i - 1] - c5 * c[k, i - 1]) / c2
+                c[0, i] = -c1 * c5 * c[0, i - 1] / c2
+            for k in range(mn, 0, -1):
+                c[k, j] = (c4 * c[k, j] - k * c[k - 1, j]) / c3
+            c[0, j] = c4 * c[0, j] / c3
+        c1 = c2
+    return c
+
+
 def read_at_spot(
     values: FloatArray, payoff: FloatArray, x_min: float, h: float, x_spot: float,
-    strike: float, american: bool,
+    strike: float, american: bool, x_boundary: float = math.nan,
 ) -> GridReadout:
-    """Cubic read-off of value, delta and gamma at ``x_spot``.
+    """Quintic read-off of value, delta and gamma at ``x_spot``.
 
     Parameters
     ----------
@@ -58,41 +143,51 @@ def read_at_spot(
         Scales the dimensionless values back to money.
     american : bool
         Whether the exercise region is checked for.
+    x_boundary : float, optional
+        Located critical log-moneyness at valuation (NaN if none). Without it, the spot counts
+        as exercised when every stencil node is.
     """
     n = values.shape[0]
+    p = min(STENCIL, n)
     j = int(math.floor((x_spot - x_min) / h))
-    j0 = min(max(j - 1, 0), n - 4)
-    t = (x_spot - x_min) / h - j0  # position in units of h from node j0, in [0, 3]
-    v0, v1, v2, v3 = values[j0], values[j0 + 1], values[j0 + 2], values[j0 + 3]
-    if american and all(values[j0 + i] <= payoff[j0 + i] and payoff[j0 + i] > 0 for i in range(4)):
-        s = math.exp(x_spot)
-        intrinsic = max(1.0 - s, 0.0) if payoff[j0] > 0 and payoff[j0] >= payoff[j0 + 3] else max(s - 1.0, 0.0)
-        sign = -1.0 if payoff[j0] >= payoff[j0 + 3] else 1.0
-        return GridReadout(strike * intrinsic, sign, 0.0, True)
-    # Lagrange basis on nodes 0, 1, 2, 3 at position t
-    a0 = t - 1.0
-    a1 = t - 2.0
-    a2 = t - 3.0
-    l0 = -a0 * a1 * a2 / 6.0
-    l1 = t * a1 * a2 / 2.0
-    l2 = -t * a0 * a2 / 2.0
-    l3 = t * a0 * a1 / 6.0
-    v = l0 * v0 + l1 * v1 + l2 * v2 + l3 * v3
-    # derivatives of the basis with respect to t
-    d0 = -(a1 * a2 + a0 * a2 + a0 * a1) / 6.0
-    d1 = (a1 * a2 + t * a2 + t * a1) / 2.0
-    d2 = -(a0 * a2 + t * a2 + t * a0) / 2.0
-    d3 = (a0 * a1 + t * a1 + t * a0) / 6.0
-    vt = d0 * v0 + d1 * v1 + d2 * v2 + d3 * v3
-    s0 = -(a0 + a1 + a2) / 3.0
-    s1 = a1 + a2 + t
-    s2 = -(a0 + a2 + t)
-    s3 = (a0 + a1 + t) / 3.0
-    vtt = s0 * v0 + s1 * v1 + s2 * v2 + s3 * v3
-    vx = vt / h
-    vxx = vtt / (h * h)
+    j0 = min(max(j - p // 2 + 1, 0), n - p)
+    if american:
+        put_side = payoff[0] > 0.0  # a put's payoff is positive at the low end
+        e = math.exp(x_spot)
+        intrinsic = max(1.0 - e, 0.0) if put_side else max(e - 1.0, 0.0)
+        if math.isfinite(x_boundary):
+            inside = x_spot <= x_boundary if put_side else x_spot >= x_boundary
+        else:
+            inside = all(values[i] <= payoff[i] and payoff[i] > 0 for i in range(j0, j0 + p))
+        if inside and intrinsic > 0.0:
+            return GridReadout(strike * intrinsic, -1.0 if put_side else 1.0, 0.0, True)
+        held = (values > payoff) | (payoff <= 0.0)
+        if put_side:
+            first = int(np.argmax(held))  # first held node from the low end
+            if first + p <= n:
+                j0 = max(j0, first)
+        else:
+            last = n - 1 - int(np.argmax(held[::-1]))  # last held node from the high end
+            if last - p + 1 >= 0:
+                j0 = min(j0, last - p + 1)
+    w = fd_weights((x_spot - x_min) / h - j0, np.arange(p, dtype=np.float64), 2)
+    seg = values[j0 : j0 + p]
+    v = float(w[0] @ seg)
+    vx = float(w[1] @ seg) / h
+    vxx = float(w[2] @ seg) / (h * h)
     e = math.exp(x_spot)
     return GridReadout(strike * v, vx / e, (vxx - vx) / (strike * e * e), False)
+
+
+def central_difference(up: float, down: float, bump: float) -> float:
+    """``(up - down) / (2 bump)``: a derivative with O(bump^2) truncation error.
+
+    Vega and rho are central differences of prices re-solved with the input bumped up and
+    down by ``bump`` on the unbumped problem's two grids. Each bumped price is Richardson
+    extrapolated from that pair like the price, so the difference of extrapolated prices is
+    the extrapolation of the differences.
+    """
+    return (up - down) / (2.0 * bump)
 
 
 def theta_from_pde(
@@ -103,3 +198,4 @@ def theta_from_pde(
     if exercised:
         return 0.0
     return -(0.5 * vol * vol * spot * spot * gamma + (rate - div_yield) * spot * delta - rate * value)
+
