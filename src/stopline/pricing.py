@@ -10,6 +10,7 @@ import numpy as np
 
 from ._types import FloatArray
 from ._validate import check_choice
+from .boundary import monotone_fit
 from .contract import Option
 from .daycount import DEFAULT_DAY_COUNT
 from .errors import InputError
@@ -104,11 +105,17 @@ class ExerciseBoundary:
         Time to expiry of each level, increasing, ending at the option's expiry.
     spot : ndarray, shape (n_levels,)
         Critical spot at each level: a put is exercised at or below it, a call at or above.
-        NaN where the option has no exercise region (European, or never optimal).
+        NaN where the option has no exercise region (European, or never optimal). The
+        least-squares monotone fit of ``raw_spot`` (see :mod:`stopline.boundary`): equal to it
+        except in the first few steps after expiry, where the located points may step back by
+        up to about one grid spacing.
+    raw_spot : ndarray, shape (n_levels,)
+        The critical spot as located after each step, below the grid spacing (finer grid).
     """
 
     time_to_expiry: FloatArray
     spot: FloatArray
+    raw_spot: FloatArray = field(default_factory=lambda: np.empty(0))
 
 
 @dataclass(frozen=True)
@@ -350,7 +357,10 @@ def price(
         market.spot, value, delta, gamma, market.rate, market.div_yield, market.vol, rf.exercised
     )
     err = abs(rf.value - rc.value) / 3.0
-    boundary = ExerciseBoundary(fine.time.tau.copy(), k * np.exp(fine.report.boundary_x))
+    raw = k * np.exp(fine.report.boundary_x)
+    boundary = ExerciseBoundary(
+        fine.time.tau.copy(), monotone_fit(raw, decreasing=option.is_put), raw
+    )
     stats = SolveStats(
         space_points=space_f.n,
         time_levels=time_f.levels,

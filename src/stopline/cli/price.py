@@ -83,6 +83,8 @@ def result_record(res) -> dict:  # noqa: ANN001 - Result, imported lazily
         "delta": res.delta,
         "gamma": res.gamma,
         "theta": res.theta,
+        "vega": res.vega,
+        "rho": res.rho,
         "error_estimate": res.error_estimate,
         "accuracy": res.accuracy,
         "method": st.method,
@@ -118,6 +120,8 @@ def show_result(res) -> None:  # noqa: ANN001
     out.add_row("delta", f"{res.delta:.6f}", "dV/dS")
     out.add_row("gamma", f"{res.gamma:.6f}", "d2V/dS2")
     out.add_row("theta", f"{res.theta:.6f}", "dV/dt per year of calendar time")
+    out.add_row("vega", f"{res.vega:.6f}", "dV/dvol per unit of vol (/100 per vol point)")
+    out.add_row("rho", f"{res.rho:.6f}", "dV/drate per unit of rate (/10,000 per basis point)")
     console.print(out)
     grid = (
         f"grid {st.space_points} x {st.time_levels} (and {st.coarse_space_points} x "
