@@ -7,6 +7,7 @@ from .errors import ConvergenceError, InputError, StoplineError
 from .exercise import METHODS, DirectSweep, ProjectedSOR
 from .market import Market
 from .pricing import PRESETS, ExerciseBoundary, GridSpec, Result, SolveStats, price
+from .profile import ValueProfile, value_profile
 
 __all__ = [
     "Option",
@@ -23,5 +24,7 @@ __all__ = [
     "StoplineError",
     "InputError",
     "ConvergenceError",
+    "value_profile",
+    "ValueProfile",
 ]
 __version__ = "0.1.0"

@@ -19,11 +19,21 @@ Kim, I. J. (1990), The analytic valuation of American options, Rev. Financial St
 
 from __future__ import annotations
 
+import csv
+import datetime as _dt
+import os
+from pathlib import Path
+from typing import TYPE_CHECKING
+
 import numpy as np
 
+from ._atomic import atomic_write
 from ._types import FloatArray
 
-__all__ = ["monotone_fit"]
+if TYPE_CHECKING:
+    from .pricing import Result
+
+__all__ = ["monotone_fit", "boundary_dates", "boundary_rows", "write_boundary_csv"]
 
 
 def monotone_fit(values: FloatArray, *, decreasing: bool) -> FloatArray:
@@ -64,3 +74,55 @@ def monotone_fit(values: FloatArray, *, decreasing: bool) -> FloatArray:
     fit[same] = y[same]
     out[ok] = sign * fit
     return out
+
+
+def boundary_dates(result: Result) -> list[_dt.date] | None:
+    """Calendar date of each boundary point, or None without a valuation date and date expiry.
+
+    A point at time to expiry ``tau`` falls ``T - tau`` years after valuation; years are
+    turned into days at 365 a year (ACT/365 fixed, as the time to expiry was measured).
+    """
+    val, exp = result.market.valuation_date, result.option.expiry
+    if val is None or not isinstance(exp, _dt.date):
+        return None
+    days = (result.time_to_expiry - result.boundary.time_to_expiry) * 365.0
+    return [val + _dt.timedelta(days=float(round(d))) for d in days]
+
+
+def boundary_rows(result: Result) -> list[dict[str, object]]:
+    """The boundary as table rows, from valuation to expiry.
+
+    Columns: ``years_from_valuation``, ``time_to_expiry``, ``date`` (ISO, or empty),
+    ``critical_spot`` (the reported monotone fit) and ``located_spot`` (as located).
+    """
+    b = result.boundary
+    dates = boundary_dates(result)
+    rows = []
+    for i in range(b.time_to_expiry.shape[0] - 1, -1, -1):
+        tau = float(b.time_to_expiry[i])
+        rows.append({
+            "years_from_valuation": result.time_to_expiry - tau,
+            "time_to_expiry": tau,
+            "date": dates[i].isoformat() if dates is not None else "",
+            "critical_spot": float(b.spot[i]),
+            "located_spot": float(b.raw_spot[i]) if b.raw_spot.size else float(b.spot[i]),
+        })
+    return rows
+
+
+def write_boundary_csv(result: Result, path: str | os.PathLike[str]) -> Path:
+    """Write :func:`boundary_rows` to ``path`` as CSV, atomically; NaN is written as empty."""
+    rows = boundary_rows(result)
+    fields = ["years_from_valuation", "time_to_expiry", "date", "critical_spot", "located_spot"]
+
+    def write(fh) -> None:  # noqa: ANN001
+        w = csv.DictWriter(fh, fieldnames=fields)
+        w.writeheader()
+        for row in rows:
+            w.writerow({
+                k: ("" if isinstance(v, float) and not np.isfinite(v)
+                    else (f"{v:.10g}" if isinstance(v, float) else v))
+                for k, v in row.items()
+            })
+
+    return atomic_write(path, write)

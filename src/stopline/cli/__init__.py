@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import typer
 
+from . import boundary as _boundary
 from . import demo as _demo
 from . import price as _price
 
@@ -20,6 +21,7 @@ app = typer.Typer(
 )
 app.command("price")(_price.price_cmd)
 app.command("demo")(_demo.demo_cmd)
+app.command("boundary")(_boundary.boundary_cmd)
 
 
 def main() -> None:

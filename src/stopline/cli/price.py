@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 from enum import Enum
+from pathlib import Path
 
 import typer
 from rich.console import Console
@@ -51,18 +52,37 @@ def price_cmd(
     accuracy: Accuracy = typer.Option(Accuracy.standard, "--accuracy", help="fast, standard or fine."),
     method: Method = typer.Option(Method.direct, "--method", help="direct (Brennan-Schwartz) or psor."),
     as_json: bool = typer.Option(False, "--json", help="Print one JSON object instead of a table."),
+    plot: Path = typer.Option(
+        None, "--plot", help="Also write a figure of value, payoff, delta and gamma across spot (PNG)."
+    ),
 ) -> None:
     """Price one American or European option with its Greeks and error estimate."""
     from .. import Market, Option
+    from ..errors import InputError
     from ..pricing import price
 
     option = Option(kind.value, strike, parse_expiry(expiry), style=style.value)
     market = Market(spot, rate, vol, div_yield=div_yield, valuation_date=valuation_date)
+    if plot is not None and not plot.resolve().parent.is_dir():
+        raise InputError("plot", str(plot), "its folder does not exist")
     res = price(option, market, accuracy=accuracy.value, method=method.value)
+    if plot is not None:
+        from ..plots import plot_value_profile, save_figure
+        from ..profile import value_profile
+
+        if res.stats.space_points == 0:
+            raise InputError("expiry", expiry, "is the valuation date: no profile to draw")
+        profile = value_profile(option, market, accuracy=accuracy.value, method=method.value)
+        save_figure(plot_value_profile(profile), plot)
     if as_json:
-        typer.echo(json.dumps(result_record(res), indent=2))
+        record = result_record(res)
+        if plot is not None:
+            record["plot"] = str(plot)
+        typer.echo(json.dumps(record, indent=2))
         return
     show_result(res)
+    if plot is not None:
+        typer.echo(f"figure: {plot}")
 
 
 def result_record(res) -> dict:  # noqa: ANN001 - Result, imported lazily
