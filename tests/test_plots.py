@@ -92,3 +92,14 @@ def test_value_profile_figure_holds_the_profile(tmp_path: Path) -> None:
     assert "model-risk policy" in _texts(fig)
     data = save_figure(fig, tmp_path / "p.png").read_bytes()
     assert data[:8] == PNG_MAGIC and len(data) > 20_000
+
+
+def test_saved_files_get_the_usual_permissions(tmp_path: Path) -> None:
+    # common practice: an atomically written file is readable like any other (umask applies).
+    import os
+
+    fig = plot_value_profile(value_profile(Option("call", 100.0, 0.5), Market(100.0, 0.03, 0.2)))
+    out = save_figure(fig, tmp_path / "m.png")
+    mask = os.umask(0)
+    os.umask(mask)
+    assert out.stat().st_mode & 0o777 == 0o666 & ~mask

@@ -33,9 +33,16 @@ def atomic_write(path: str | os.PathLike[str], write: Callable[[IO], None], *, b
         kwargs = {} if binary else {"encoding": "utf-8", "newline": ""}
         with os.fdopen(fd, mode, **kwargs) as fh:
             write(fh)
+        os.chmod(tmp, 0o666 & ~_umask())  # mkstemp makes 0600; give the usual mode
         os.replace(tmp, target)
     except BaseException:
         if os.path.exists(tmp):
             os.unlink(tmp)
         raise
     return target
+
+
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
