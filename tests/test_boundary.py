@@ -120,3 +120,50 @@ def test_monotone_fit_keeps_nans_and_monotone_input() -> None:
     out = monotone_fit(y, decreasing=True)
     np.testing.assert_array_equal(out, y)
     np.testing.assert_array_equal(monotone_fit(np.array([1.0, 3.0, 2.0]), decreasing=False), [1.0, 2.5, 2.5])
+
+
+def _locate_twin(v: np.ndarray, payoff: np.ndarray, x0: float, h: float, is_put: bool) -> float:
+    """Plain-NumPy twin of _kernels.locate_boundary (written from its docstring)."""
+    n = v.shape[0]
+    exercised = (payoff > 0.0) & (v <= payoff)
+    inner = np.arange(1, n - 1)
+    if is_put:
+        run = inner[np.cumprod(exercised[1 : n - 1]).astype(bool)]
+        j = 1 + run.size
+        if j == 1 or j >= n - 2:
+            return math.nan
+        held = [j + 1, j + 2] if j + 3 <= n - 1 else [j, j + 1]
+        sgn = 1.0
+    else:
+        run = inner[::-1][np.cumprod(exercised[1 : n - 1][::-1]).astype(bool)]
+        j = n - 2 - run.size
+        if j == n - 2 or j <= 1:
+            return math.nan
+        held = [j - 1, j - 2] if j - 3 >= 0 else [j, j - 1]
+        sgn = -1.0
+    sa, sb = np.sqrt(np.maximum(v[held] - payoff[held], 0.0))
+    off = abs(held[0] - j)
+    t = off - sa / (sb - sa) if sb > sa else -0.5
+    t = min(max(t, -3.0), 0.0)
+    x = x0 + j * h + sgn * t * h
+    return min(x, 0.0) if is_put else max(x, 0.0)
+
+
+@pytest.mark.parametrize("is_put", [True, False])
+def test_locate_boundary_kernel_matches_numpy_twin(is_put: bool, rng: np.random.Generator) -> None:
+    # common practice: each numba kernel agrees with a plain-NumPy twin; here on gaps
+    # c (x - x*)^2 plus noise, whose vertex the kernel should find to a small fraction of h.
+    from stopline._kernels import locate_boundary
+
+    h, n = 0.01, 201
+    x0 = -1.0
+    x = x0 + h * np.arange(n)
+    for _ in range(50):
+        star = rng.uniform(-0.6, -0.1) if is_put else rng.uniform(0.1, 0.6)
+        payoff = np.maximum(1.0 - np.exp(x), 0.0) if is_put else np.maximum(np.exp(x) - 1.0, 0.0)
+        side = (x > star) if is_put else (x < star)
+        gap = np.where(side, rng.uniform(0.5, 2.0) * (x - star) ** 2, 0.0)
+        v = payoff + gap * (1.0 + rng.normal(0.0, 1e-3, n))
+        ours = locate_boundary(v, payoff, x0, h, is_put)
+        assert ours == pytest.approx(_locate_twin(v, payoff, x0, h, is_put), abs=1e-14)
+        assert abs(ours - star) < 0.01 * h

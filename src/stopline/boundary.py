@@ -58,6 +58,8 @@ def monotone_fit(values: FloatArray, *, decreasing: bool) -> FloatArray:
         return out
     sign = -1.0 if decreasing else 1.0
     y = sign * y
+    if np.all(np.diff(y) >= 0.0):
+        return out
     means: list[float] = []
     sizes: list[int] = []
     for v in y:
