@@ -133,7 +133,8 @@ class SolveStats:
     method : str
         Exercise solver used.
     psor_iterations, psor_max_sweeps : int
-        PSOR sweeps over both grids and the most in one step (0 for the direct sweep).
+        PSOR sweeps over every solve (both grids, and the bumped re-solves for vega and rho)
+        and the most in one step (0 for the direct sweep).
     domain : tuple of float
         Lowest and highest spot on the grid.
     day_count : str
@@ -334,6 +335,8 @@ def price(
     gamma = rf.gamma + (rf.gamma - rc.gamma) / 3.0
     vega = rho = 0.0
     psor = [coarse.report, fine.report]
+    if rf.exercised != rc.exercised:  # the grids put the spot on different sides of the
+        value, delta, gamma = rf.value, rf.delta, rf.gamma  # boundary: do not extrapolate
     if rf.exercised:
         value, delta, gamma = rf.value, rf.delta, rf.gamma
     else:
