@@ -23,7 +23,7 @@ def _value(p: PDEProblem, pps: float, levels: int, *, grading: float = 2.0, rann
     space = build_space_grid(p.x_spot, sd, drift, width_sd=6.0, points_per_sd=pps)
     time = build_time_grid(p.expiry, levels, grading=grading, rannacher=rannacher)
     sol = solve(p, space, time, DirectSweep())
-    return read_at_spot(sol.values, sol.payoff, space.x_min, space.h, p.x_spot, 100.0, p.american).value
+    return read_at_spot(sol.values, sol.payoff, sol.x_min, space.h, p.x_spot, 100.0, p.american).value
 
 
 def _slope(h: list[float], err: list[float]) -> float:
@@ -92,7 +92,7 @@ def test_rannacher_start_removes_gamma_ringing() -> None:
         space = build_space_grid(0.0, sd, 0.0, width_sd=6.0, points_per_sd=k)
         time = build_time_grid(t, k, rannacher=rannacher, grading=grading)
         sol = solve(p, space, time, DirectSweep())
-        return read_at_spot(sol.values, sol.payoff, space.x_min, space.h, 0.0, 100.0, False).gamma
+        return read_at_spot(sol.values, sol.payoff, sol.x_min, space.h, 0.0, 100.0, False).gamma
 
     ks = [10, 20, 40, 80]
     plain = [abs(gamma(k, 0, 1.0) / exact - 1) for k in ks]

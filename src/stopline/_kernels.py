@@ -5,15 +5,17 @@ Every function here works on plain float64 arrays and scalars only, and is compi
 orchestration (grids, coefficients, results) lives in the other modules; the tests hold a
 plain-NumPy twin of each kernel.
 
-Notation. Values are dimensionless (option value divided by the strike) on nodes
-``x_j = ln(S_j / K)``, ``j = 0 .. n-1``, uniformly spaced. One theta-scheme step from level
-``tau`` to ``tau + dt`` solves, on the interior nodes,
+Notation. Values are dimensionless (option value divided by the strike) on uniformly spaced
+nodes ``y_j``, ``j = 0 .. n-1``, of the drift-free frame ``y = ln(S / K) + M(tau)`` with
+``M(tau) = int_0^tau (r - q - vol^2 / 2)`` (see :mod:`stopline.operator`). At step ``k`` a node
+stands for the spot ``S_j / K = e^{y_j} shift_k`` with ``shift_k = e^{-M(tau_k)}``. One
+theta-scheme step from level ``tau`` to ``tau + dt`` solves, on the interior nodes,
 
     (1 - theta dt L) v_new = (1 + (1 - theta) dt L) v_old,
     (L v)_j = lo v_{j-1} + di v_j + up v_{j+1},
 
 with Dirichlet values at both ends, then (American) the complementarity problem
-``v_new >= payoff``.
+``v_new >= payoff(e^{y} shift_k)``.
 """
 
 from __future__ import annotations
@@ -24,6 +26,8 @@ import numpy as np
 from numba import njit
 
 __all__ = [
+    "obstacle",
+    "far_value",
     "far_values",
     "march_direct",
     "march_psor",
@@ -33,26 +37,47 @@ __all__ = [
 
 
 @njit(cache=True)
-def far_values(s_lo, s_hi, df_r, df_q, is_put, american):
-    """Dirichlet values at the low and high ends of the grid at one level.
+def far_value(s, df_r, df_q, is_put, american):
+    """Dirichlet value at a grid end at spot ``s`` (in units of the strike).
 
-    The European asymptote is the discounted forward payoff (the option is certain to end in
-    the money at one end and worthless at the other); an American option is floored by its
-    intrinsic value.
+    Far from the strike the option is certain to end in or out of the money, so its value is
+    the discounted forward payoff, floored at zero; an American option is also floored by its
+    intrinsic value. The same rule serves both ends and grids that do not reach the strike.
     """
     if is_put:
-        lo = df_r - s_lo * df_q
-        if lo < 0.0:
-            lo = 0.0
-        if american and 1.0 - s_lo > lo:
-            lo = 1.0 - s_lo
-        return lo, 0.0
-    hi = s_hi * df_q - df_r
-    if hi < 0.0:
-        hi = 0.0
-    if american and s_hi - 1.0 > hi:
-        hi = s_hi - 1.0
-    return 0.0, hi
+        v = df_r - s * df_q
+        e = 1.0 - s
+    else:
+        v = s * df_q - df_r
+        e = s - 1.0
+    if v < 0.0:
+        v = 0.0
+    if american and e > v:
+        v = e
+    return v
+
+
+@njit(cache=True)
+def obstacle(ex, shift, is_put, out):
+    """Exercise value / strike on the nodes at one level: ``max(+-(1 - e^{y} shift), 0)``."""
+    n = ex.shape[0]
+    if is_put:
+        for j in range(n):
+            e = 1.0 - ex[j] * shift
+            out[j] = e if e > 0.0 else 0.0
+    else:
+        for j in range(n):
+            e = ex[j] * shift - 1.0
+            out[j] = e if e > 0.0 else 0.0
+
+
+@njit(cache=True)
+def far_values(s_lo, s_hi, df_r, df_q, is_put, american):
+    """Dirichlet values at the low and high ends of the grid at one level."""
+    return (
+        far_value(s_lo, df_r, df_q, is_put, american),
+        far_value(s_hi, df_r, df_q, is_put, american),
+    )
 
 
 @njit(cache=True)
@@ -68,7 +93,8 @@ def locate_boundary(v, payoff, x0, h, is_put):
     third held nodes; the first two are used if the grid leaves no third. The discrete
     problem may exercise a node or two on which the exact solution is (barely) held, so
     ``x*`` may lie up to three spacings inside the run of exercised nodes; it is kept on the
-    side of the strike where the payoff is positive.
+    side of the strike where the payoff is positive (the strike's position is read off the
+    payoff of the last exercised node, so any frame of the nodes will do).
     """
     n = v.shape[0]
     if is_put:
@@ -98,33 +124,43 @@ def locate_boundary(v, payoff, x0, h, is_put):
     elif t > 0.0:
         t = 0.0
     x = x0 + j * h + t * step
-    if is_put and x > 0.0:
-        x = 0.0
-    elif not is_put and x < 0.0:
-        x = 0.0
+    # the strike's position, from the payoff of the last exercised node (any frame)
+    if is_put:
+        x_k = x0 + (j - 1) * h - math.log(1.0 - payoff[j - 1])
+        if x > x_k:
+            x = x_k
+    else:
+        x_k = x0 + (j + 1) * h - math.log(1.0 + payoff[j + 1])
+        if x < x_k:
+            x = x_k
     return x
 
 
 @njit(cache=True)
-def march_direct(v, payoff, x0, h, dt, theta, lo, di, up, df_r, df_q, is_put, american, bnd):
+def march_direct(
+    v, ex, x0, h, dt, theta, lo, di, up, df_r, df_q, shift, scale, is_put, american, bnd
+):
     """March ``v`` through all steps with the Brennan-Schwartz direct sweep.
 
     Parameters
     ----------
     v : ndarray, shape (n,)
         Values at the first level; overwritten with the values at the last level.
-    payoff : ndarray, shape (n,)
-        Exercise value on the nodes.
+    ex : ndarray, shape (n,)
+        ``e^{y_j}`` on the nodes.
     x0, h : float
-        First node and spacing of the uniform log-moneyness grid.
-    dt, theta, lo, di, up, df_r, df_q : ndarray, shape (n_steps,)
+        First node and spacing of the uniform grid in ``y``.
+    dt, theta, lo, di, up, df_r, df_q, shift, scale : ndarray, shape (n_steps,)
         Per step: length, implicitness (1 fully implicit, 0.5 Crank-Nicolson), operator
-        coefficients, and the discount factors for rate and yield from expiry to the new
-        level (for the far-field values).
+        coefficients, the discount factors for rate and yield from expiry to the new level
+        (for the far-field values), ``e^{-M(tau)}`` at the new level, and the factor by which
+        ``v`` is scaled at the new level (``1 / df_r`` when the operator leaves out the
+        discounting term, 1 otherwise): the exercise and far-field values are scaled alike.
     is_put, american : bool
         Contract flags. For a European option the sweep is a plain Thomas solve.
     bnd : ndarray, shape (n_steps,)
-        Written: the critical log-moneyness after each step (NaN if no exercise region).
+        Written: the critical log-moneyness ``ln(S*/K)`` after each step (NaN if no exercise
+        region).
 
     Notes
     -----
@@ -135,15 +171,22 @@ def march_direct(v, payoff, x0, h, dt, theta, lo, di, up, df_r, df_q, is_put, am
     n = v.shape[0]
     rhs = np.empty(n)
     w = np.empty(n)
-    s_lo = math.exp(x0)
-    s_hi = math.exp(x0 + (n - 1) * h)
+    payoff = np.empty(n)
     for k in range(dt.shape[0]):
+        sk = shift[k]
         ae = (1.0 - theta[k]) * dt[k]
         ai = theta[k] * dt[k]
         lk = lo[k]
         d = di[k]
         u = up[k]
-        vl, vh = far_values(s_lo, s_hi, df_r[k], df_q[k], is_put, american)
+        vl, vh = far_values(ex[0] * sk, ex[n - 1] * sk, df_r[k], df_q[k], is_put, american)
+        vl *= scale[k]
+        vh *= scale[k]
+        if american:
+            obstacle(ex, sk, is_put, payoff)
+            if scale[k] != 1.0:
+                for j in range(n):
+                    payoff[j] *= scale[k]
         el = ae * lk
         ed = 1.0 + ae * d
         eu = ae * u
@@ -187,14 +230,14 @@ def march_direct(v, payoff, x0, h, dt, theta, lo, di, up, df_r, df_q, is_put, am
                     v[j] = (rhs[j] - c * v[j + 1]) * w[j]
             v[0] = vl
         if american:
-            bnd[k] = locate_boundary(v, payoff, x0, h, is_put)
+            bnd[k] = locate_boundary(v, payoff, x0, h, is_put) + math.log(sk)
         else:
             bnd[k] = math.nan
 
 
 @njit(cache=True)
 def march_psor(
-    v, payoff, x0, h, dt, theta, lo, di, up, df_r, df_q, is_put, american, bnd,
+    v, ex, x0, h, dt, theta, lo, di, up, df_r, df_q, shift, scale, is_put, american, bnd,
     omega, tol, max_iter, iters,
 ):
     """March ``v`` through all steps with projected successive over-relaxation.
@@ -224,16 +267,23 @@ def march_psor(
     """
     n = v.shape[0]
     rhs = np.empty(n)
-    s_lo = math.exp(x0)
-    s_hi = math.exp(x0 + (n - 1) * h)
+    payoff = np.empty(n)
     failed = -1
     for k in range(dt.shape[0]):
+        sk = shift[k]
         ae = (1.0 - theta[k]) * dt[k]
         ai = theta[k] * dt[k]
         lk = lo[k]
         d = di[k]
         u = up[k]
-        vl, vh = far_values(s_lo, s_hi, df_r[k], df_q[k], is_put, american)
+        vl, vh = far_values(ex[0] * sk, ex[n - 1] * sk, df_r[k], df_q[k], is_put, american)
+        vl *= scale[k]
+        vh *= scale[k]
+        if american:
+            obstacle(ex, sk, is_put, payoff)
+            if scale[k] != 1.0:
+                for j in range(n):
+                    payoff[j] *= scale[k]
         el = ae * lk
         ed = 1.0 + ae * d
         eu = ae * u
@@ -273,7 +323,7 @@ def march_psor(
                 break
         iters[k] = it
         if american:
-            bnd[k] = locate_boundary(v, payoff, x0, h, is_put)
+            bnd[k] = locate_boundary(v, payoff, x0, h, is_put) + math.log(sk)
         else:
             bnd[k] = math.nan
     return failed

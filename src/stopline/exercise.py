@@ -60,14 +60,14 @@ class DirectSweep:
     name: str = "direct"
 
     def march(
-        self, v: FloatArray, payoff: FloatArray, space: SpaceGrid, plan: StepPlan,
+        self, v: FloatArray, ex: FloatArray, space: SpaceGrid, plan: StepPlan,
         is_put: bool, american: bool,
     ) -> MarchReport:
-        """Advance ``v`` (in place) through every step of ``plan``."""
+        """Advance ``v`` (in place) through every step of ``plan``; ``ex = exp(space.x)``."""
         bnd = np.empty(plan.dt.shape[0])
         _kernels.march_direct(
-            v, payoff, space.x_min, space.h, plan.dt, plan.theta, plan.lo, plan.di, plan.up,
-            plan.df_r, plan.df_q, is_put, american, bnd,
+            v, ex, space.x_min, space.h, plan.dt, plan.theta, plan.lo, plan.di, plan.up,
+            plan.df_r, plan.df_q, plan.shift, plan.scale, is_put, american, bnd,
         )
         return MarchReport(bnd)
 
@@ -101,17 +101,18 @@ class ProjectedSOR:
             raise InputError("max_iter", self.max_iter, "must be >= 1")
 
     def march(
-        self, v: FloatArray, payoff: FloatArray, space: SpaceGrid, plan: StepPlan,
+        self, v: FloatArray, ex: FloatArray, space: SpaceGrid, plan: StepPlan,
         is_put: bool, american: bool,
     ) -> MarchReport:
-        """Advance ``v`` (in place) through every step of ``plan``."""
+        """Advance ``v`` (in place) through every step of ``plan``; ``ex = exp(space.x)``."""
         n_steps = plan.dt.shape[0]
         bnd = np.empty(n_steps)
         iters = np.zeros(n_steps, dtype=np.int64)
         omega = -1.0 if self.omega is None else float(self.omega)
         failed = _kernels.march_psor(
-            v, payoff, space.x_min, space.h, plan.dt, plan.theta, plan.lo, plan.di, plan.up,
-            plan.df_r, plan.df_q, is_put, american, bnd, omega, self.tol, self.max_iter, iters,
+            v, ex, space.x_min, space.h, plan.dt, plan.theta, plan.lo, plan.di, plan.up,
+            plan.df_r, plan.df_q, plan.shift, plan.scale, is_put, american, bnd, omega, self.tol,
+            self.max_iter, iters,
         )
         if failed >= 0:
             raise ConvergenceError(

@@ -1,9 +1,10 @@
 """Space and time grids.
 
-Space: uniform nodes in log-moneyness ``x = ln(S / K)``, with the strike exactly on a node
-(the payoff kink on a node keeps the scheme second order) and the domain wide enough, in
-standard deviations of ``ln S`` over the option's life, that the far-field values do not move
-the price at the preset's tolerance.
+Space: uniform nodes in the drift-free frame ``y = ln(S / K) + M(tau)`` (see
+:mod:`stopline.operator`), with the strike exactly on a node at expiry (the payoff kink on a
+node keeps the scheme second order) and the domain wide enough, in standard deviations of
+``ln S`` over the option's life, that the far-field values do not move the price at the
+preset's tolerance.
 
 Time: levels in time to expiry ``tau`` graded towards expiry, ``tau_k = T (k / m)^2``, since
 the American exercise boundary moves like ``sqrt(tau)`` near expiry and uniform steps lose
@@ -35,14 +36,20 @@ class SpaceGrid:
         Spacing.
     n : int
         Number of nodes, boundary nodes included.
+    frame : {"x", "y"}
+        Coordinate of the nodes: log-moneyness ``x = ln(S / K)``, or the drift-free frame
+        ``y = x + M(tau)`` (see :mod:`stopline.operator`).
     strike_index : int
-        Index of the node at ``x = 0`` (the strike).
+        Index of the node at expiry's strike, or -1 when the strike lies more than
+        ``width_sd`` standard deviations from both the spot and the forward: then the payoff is
+        smooth on the whole domain and no node is spent between the spot and the strike.
     """
 
     x_min: float
     h: float
     n: int
     strike_index: int
+    frame: str = "x"
 
     @property
     def x(self) -> FloatArray:
@@ -54,9 +61,15 @@ class SpaceGrid:
         """Last node."""
         return self.x_min + (self.n - 1) * self.h
 
+    @property
+    def has_strike(self) -> bool:
+        """Whether the strike is a node (False when it lies beyond the domain's reach)."""
+        return self.strike_index >= 0
+
     def refined(self) -> SpaceGrid:
         """The grid with half the spacing on the same domain (every old node kept)."""
-        return SpaceGrid(self.x_min, 0.5 * self.h, 2 * self.n - 1, 2 * self.strike_index)
+        k = 2 * self.strike_index if self.has_strike else -1
+        return SpaceGrid(self.x_min, 0.5 * self.h, 2 * self.n - 1, k, self.frame)
 
 
 @dataclass(frozen=True)
@@ -99,8 +112,17 @@ def build_space_grid(
     points_per_sd: float | None = None,
     n_points: int | None = None,
     h_max: float = math.inf,
+    n_max: int | None = None,
+    frame: str = "x",
 ) -> SpaceGrid:
-    """Build a uniform log-moneyness grid with the strike on a node and the spot inside.
+    """Build a uniform grid with the strike on a node.
+
+    In the log-moneyness frame (``frame="x"``) the domain covers the spot and the forward
+    ``x_s + drift``, each with ``width_sd * sd`` to spare. In the drift-free frame
+    (``frame="y"``, ``y = ln(S / K) + M(tau)``, see :mod:`stopline.operator`) the strike sits at
+    ``y = 0`` at expiry and the spot at ``y_s = x_s + drift`` at valuation, so the domain only
+    covers ``y_s +- width_sd * sd``. Either way the strike is added, with the same margin, when
+    it lies within two more standard deviations of that interval.
 
     Parameters
     ----------
@@ -109,30 +131,38 @@ def build_space_grid(
     sd : float
         Standard deviation of ``ln S`` over the option's life, ``sqrt(int vol^2 dt)``.
     drift : float
-        Mean move of ``ln S`` over the option's life, ``int (r - q - vol^2 / 2) dt``.
+        ``M(T) = int (r - q - vol^2 / 2) dt`` over the option's life.
     width_sd : float
-        Half-width of the domain beyond the strike, the spot and the forward, in ``sd``.
+        Half-width of the domain around the spot (and the strike), in ``sd``.
     points_per_sd, n_points : float or int
         Resolution: nodes per standard deviation, or (expert) the total number of nodes.
         Exactly one must be given.
     h_max : float
-        Largest spacing allowed (e.g. to keep central differences monotone at low vol).
+        Largest spacing wanted.
+    n_max : int, optional
+        Most nodes allowed; overrides ``h_max`` when both cannot hold.
+    frame : {"x", "y"}
+        Coordinate of the nodes.
     """
-    lo = min(0.0, x_spot, x_spot + drift) - width_sd * sd
-    hi = max(0.0, x_spot, x_spot + drift) + width_sd * sd
+    anchors = (x_spot + drift,) if frame == "y" else (x_spot, x_spot + drift)
+    lo = min(anchors) - width_sd * sd
+    hi = max(anchors) + width_sd * sd
+    # the strike is left out only when it lies two standard deviations beyond the domain
+    # itself: what the option is worth there is then below ~phi(width_sd + 2) of the strike
+    reach = lo - 2.0 * sd <= 0.0 <= hi + 2.0 * sd
+    if reach:
+        lo, hi = min(lo, -width_sd * sd), max(hi, width_sd * sd)
     if (points_per_sd is None) == (n_points is None):
         raise ValueError("give exactly one of points_per_sd and n_points")
-    if n_points is not None:
-        h = (hi - lo) / (n_points - 2)
-    else:
-        h = sd / points_per_sd
-    h = min(h, h_max)
+    h = (hi - lo) / (n_points - 2) if n_points is not None else min(sd / points_per_sd, h_max)
+    if n_max is not None and (hi - lo) / h + 2 > n_max:
+        h = (hi - lo) / (n_max - 2)
+    if not reach:
+        n = n_points if n_points is not None else math.ceil((hi - lo) / h) + 1
+        return SpaceGrid(lo, h, n, -1, frame)
     j_lo = math.ceil(-lo / h)
-    if n_points is not None:
-        n = n_points
-    else:
-        n = j_lo + math.ceil(hi / h) + 1
-    return SpaceGrid(-j_lo * h, h, n, j_lo)
+    n = n_points if n_points is not None else j_lo + math.ceil(hi / h) + 1
+    return SpaceGrid(-j_lo * h, h, n, j_lo, frame)
 
 
 def build_time_grid(

@@ -1,16 +1,29 @@
-"""The Black-Scholes operator on a uniform log-moneyness grid.
+"""The Black-Scholes operator on a uniform grid, in one of two frames.
 
 With ``x = ln(S / K)`` and ``v = V / K``, the Black-Scholes equation in time to expiry is
 
-    v_tau = L v,   L v = 1/2 s^2 v_xx + (r - q - 1/2 s^2) v_x - r v.
+    v_tau = 1/2 s^2 v_xx + mu v_x - r v,   mu = r - q - s^2 / 2.
 
-Central differences on spacing ``h`` give, at each interior node,
+Frame "x" solves it as it stands. Central differences on spacing ``h`` give, at every interior
+node, ``(L v)_j = lo v_{j-1} + di v_j + up v_{j+1}`` with
 
-    (L v)_j = lo v_{j-1} + di v_j + up v_{j+1},
-    lo = s^2 / (2 h^2) - mu / (2 h),  di = -s^2 / h^2 - r,  up = s^2 / (2 h^2) + mu / (2 h),
+    lo = s^2 / (2 h^2) - mu / (2 h),   di = -s^2 / h^2 - r,   up = s^2 / (2 h^2) + mu / (2 h).
 
-with ``mu = r - q - s^2 / 2``. The coefficients do not depend on ``x``, so a step is described
-by three numbers; time-dependent rates, yields or vols give one triple per step.
+The payoff kink stays on the strike node for the whole life, which keeps American prices
+cleanly second order; but ``lo`` turns negative (oscillations, negative prices) once
+``|mu| h > s^2``, and the grid must span the forward's whole path ``mu T``.
+
+Frame "y" moves with the drift, ``y = x + M(tau)``, ``M(tau) = int_0^tau mu``, and marches the
+undiscounted value ``u = v e^{int r}``, which obeys the heat equation ``u_tau = 1/2 s^2 u_yy``
+(no drift term, and no decay term for Crank-Nicolson to misjudge over long, high-rate lives);
+the exercise value at level ``tau`` is the payoff at ``x = y - M(tau)``, undiscounted alike.
+It is monotone at every spacing and its grid covers only the spot's neighbourhood, so it
+serves very low volatility with a large drift (:func:`choose_frame`), where frame "x" would
+need a tiny spacing over a long domain. Its price for that: the exercise value's kink drifts
+between nodes, so American errors are less regular and need shorter steps.
+
+The coefficients do not depend on the node, so a step is described by three numbers;
+time-dependent rates, yields or vols give one triple per step.
 """
 
 from __future__ import annotations
@@ -22,7 +35,7 @@ import numpy as np
 from ._types import FloatArray
 from .grid import TimeGrid
 
-__all__ = ["StepPlan", "plan_steps", "max_monotone_spacing"]
+__all__ = ["StepPlan", "plan_steps", "coefficients", "choose_frame"]
 
 
 @dataclass(frozen=True)
@@ -37,6 +50,13 @@ class StepPlan:
         Operator coefficients (see module docstring).
     df_r, df_q : ndarray
         ``exp(-int_0^tau r)`` and ``exp(-int_0^tau q)`` at the end of each step.
+    shift : ndarray
+        ``exp(-M(tau))`` at the end of each step in frame "y" (node ``y`` stands for
+        ``S/K = e^y shift``); ones in frame "x".
+    scale : ndarray
+        ``1 / df_r`` in frame "y", whose operator leaves out the discounting (the kernels then
+        march the undiscounted value and scale exercise and far-field values to match); ones
+        in frame "x".
     """
 
     tau: FloatArray
@@ -47,42 +67,61 @@ class StepPlan:
     up: FloatArray
     df_r: FloatArray
     df_q: FloatArray
+    shift: FloatArray
+    scale: FloatArray
+
+    @property
+    def drift(self) -> float:
+        """``M(T)``: how far the frame has moved by valuation (``x = y - M(T)``)."""
+        return float(-np.log(self.shift[-1])) if self.shift.size else 0.0
 
 
-def plan_steps(time: TimeGrid, h: float, rate: float, div_yield: float, vol: float) -> StepPlan:
-    """Per-step operator coefficients and discount factors for flat market data.
+def coefficients(
+    h: float, rate: float, div_yield: float, vol: float, frame: str = "x"
+) -> tuple[float, float, float]:
+    """``(lo, di, up)`` of the operator on spacing ``h`` in the given frame."""
+    alpha = 0.5 * vol * vol / (h * h)
+    if frame == "y":
+        return alpha, -2.0 * alpha, alpha
+    beta = 0.5 * (rate - div_yield - 0.5 * vol * vol) / h
+    return alpha - beta, -2.0 * alpha - rate, alpha + beta
+
+
+def choose_frame(sd: float, drift: float, h: float, vol: float, mu: float) -> str:
+    """Frame "y" where frame "x" would be non-monotone (``|mu| h > vol^2``) on spacing ``h``
+    or would spend most of its nodes on the forward's path (``|drift| > 4 sd``); else "x"."""
+    return "y" if abs(mu) * h > vol * vol or abs(drift) > 4.0 * sd else "x"
+
+
+def plan_steps(
+    time: TimeGrid, h: float, rate: float, div_yield: float, vol: float, frame: str = "x"
+) -> StepPlan:
+    """Per-step operator coefficients, discount factors and frame shifts for flat market data.
 
     Parameters
     ----------
     time : TimeGrid
         The steps.
     h : float
-        Spacing of the log-moneyness grid.
+        Spacing of the grid.
     rate, div_yield, vol : float
         Continuously compounded rate and yield, annual volatility.
+    frame : {"x", "y"}
+        Coordinate of the grid (module docstring).
     """
-    s2 = vol * vol
-    mu = rate - div_yield - 0.5 * s2
-    alpha = 0.5 * s2 / (h * h)
-    beta = 0.5 * mu / h
+    lo, di, up = coefficients(h, rate, div_yield, vol, frame)
     ones = np.ones_like(time.dt)
+    mu = rate - div_yield - 0.5 * vol * vol if frame == "y" else 0.0
+    df_r = np.exp(-rate * time.tau)
     return StepPlan(
         tau=time.tau,
         dt=time.dt,
         theta=time.theta,
-        lo=(alpha - beta) * ones,
-        di=(-2.0 * alpha - rate) * ones,
-        up=(alpha + beta) * ones,
-        df_r=np.exp(-rate * time.tau),
+        lo=lo * ones,
+        di=di * ones,
+        up=up * ones,
+        df_r=df_r,
         df_q=np.exp(-div_yield * time.tau),
+        shift=np.exp(-mu * time.tau),
+        scale=1.0 / df_r if frame == "y" else ones,
     )
-
-
-def max_monotone_spacing(rate: float, div_yield: float, vol: float) -> float:
-    """Largest spacing at which central differences keep both off-diagonals non-negative.
-
-    ``lo >= 0`` and ``up >= 0`` need ``|mu| h <= s^2``; beyond it the scheme can produce
-    spurious oscillations (and negative prices) at low volatility.
-    """
-    mu = abs(rate - div_yield - 0.5 * vol * vol)
-    return np.inf if mu == 0.0 else vol * vol / mu

@@ -25,7 +25,7 @@ from .greeks import (
 )
 from .grid import SpaceGrid, TimeGrid, build_space_grid, build_time_grid
 from .market import Market
-from .operator import max_monotone_spacing
+from .operator import choose_frame
 from .solve import GridSolution, PDEProblem, solve
 
 __all__ = [
@@ -76,6 +76,15 @@ PRESETS: dict[str, AccuracyPreset] = {
     "standard": AccuracyPreset("standard", 1e-6, 20.0, 5.5, 100, 0.008),
     "fine": AccuracyPreset("fine", 1e-8, 80.0, 7.0, 400, 0.002),
 }
+
+
+#: Most nodes of the coarse grid of a preset (the fine grid has about twice as many); a
+#: safety net that typical and extreme contracts alike stay well inside; ``price`` warns if
+#: it is reached.
+MAX_COARSE_NODES = 10_000
+#: Below this ``vol * sqrt(T)`` the zero-volatility limit is used (its error is below about
+#: ``0.4 * vol * sqrt(T)`` of the spot, i.e. under 1e-6 of the strike near the money).
+MIN_SD_FOR_GRID = 2e-6
 
 
 @dataclass(frozen=True)
@@ -210,26 +219,47 @@ class Result:
 def _resolve_grid(
     problem: PDEProblem, accuracy: str, grid: GridSpec | tuple[int, int] | None
 ) -> tuple[SpaceGrid, TimeGrid, str]:
+    """The coarse grid of the Richardson pair, in the frame that suits the problem."""
     sd = problem.vol * math.sqrt(problem.expiry)
-    drift = (problem.rate - problem.div_yield - 0.5 * problem.vol**2) * problem.expiry
-    h_max = max_monotone_spacing(problem.rate, problem.div_yield, problem.vol)
+    mu = problem.rate - problem.div_yield - 0.5 * problem.vol**2
+    drift = mu * problem.expiry
     if grid is not None:
         spec = grid if isinstance(grid, GridSpec) else GridSpec(*grid)
-        preset = PRESETS["standard"]
-        coarse_n = spec.space_points // 2 + 1
-        space = build_space_grid(
-            problem.x_spot, sd, drift, width_sd=preset.width_sd, n_points=coarse_n, h_max=h_max
-        )
-        time = build_time_grid(problem.expiry, max(spec.time_levels // 2, 2))
-        return space, time, "custom"
-    name = check_choice("accuracy", accuracy, tuple(PRESETS))
-    preset = PRESETS[name]
-    space = build_space_grid(
-        problem.x_spot, sd, drift, width_sd=preset.width_sd,
-        points_per_sd=0.5 * preset.points_per_sd, h_max=2.0 * min(h_max, preset.max_spacing),
-    )
-    time = build_time_grid(problem.expiry, preset.time_levels // 2)
-    return space, time, name
+        name, width = "custom", PRESETS["standard"].width_sd
+        kwargs: dict = {"n_points": spec.space_points // 2 + 1}
+        levels = max(spec.time_levels // 2, 2)
+    else:
+        name = check_choice("accuracy", accuracy, tuple(PRESETS))
+        preset = PRESETS[name]
+        width, levels = preset.width_sd, preset.time_levels // 2
+        scale = _decay_length(problem.rate, mu, problem.vol) if problem.american else math.inf
+        kwargs = {
+            "points_per_sd": 0.5 * preset.points_per_sd * sd / min(sd, scale),
+            "h_max": 2.0 * preset.max_spacing,
+            "n_max": MAX_COARSE_NODES,
+        }
+    space = build_space_grid(problem.x_spot, sd, drift, width_sd=width, **kwargs)
+    if choose_frame(sd, drift, space.h, problem.vol, mu) == "y":
+        space = build_space_grid(problem.x_spot, sd, drift, width_sd=width, frame="y", **kwargs)
+        if problem.american:
+            # steps short enough that the exercise value's kink moves about a node per step
+            levels = max(levels, min(math.ceil(abs(drift) / space.h), 20 * levels))
+    return space, build_time_grid(problem.expiry, levels), name
+
+
+def _decay_length(rate: float, mu: float, vol: float) -> float:
+    """Length in ``ln S`` over which an American option's premium decays near its boundary.
+
+    ``1 / |lambda|`` for the roots of ``vol^2/2 l^2 + mu l - r = 0``, the exponents of the
+    perpetual option (Merton 1973). At low volatility this is far shorter than
+    ``vol sqrt(T)``, and the grid must resolve it rather than the spread of the spot.
+    """
+    disc = mu * mu + 2.0 * vol * vol * rate
+    if disc < 0.0:
+        return math.inf
+    root = math.sqrt(disc)
+    lengths = [vol * vol / abs(-mu + sgn * root) for sgn in (-1.0, 1.0) if -mu + sgn * root != 0.0]
+    return min(lengths, default=math.inf)
 
 
 def _expired(option: Option, market: Market, method: ExerciseMethod, t: float) -> Result:
@@ -246,6 +276,51 @@ def _expired(option: Option, market: Market, method: ExerciseMethod, t: float) -
                        warnings=("expiry is zero: intrinsic value, no grid solved",))
     return Result(intrinsic, delta, 0.0, 0.0, 0.0, 0.0, 0.0, ExerciseBoundary(empty, empty),
                   stats, option, market, t, "exact")
+
+
+def _zero_vol_limit(option: Option, market: Market, method: ExerciseMethod, t: float) -> Result:
+    """Deterministic spot ``S e^{(r-q)u}``: the best of exercising at any ``u`` in [0, T].
+
+    Exercise at ``u`` is worth ``e^{-ru} payoff(S e^{(r-q)u})``; for a put this is
+    ``K e^{-ru} - S e^{-qu}``, smooth with at most one stationary point
+    ``u* = ln(qS / (rK)) / (q - r)``, so the maximum is at 0, T or u*. A European option
+    takes ``u = T`` only.
+    """
+    s, k, r, q = market.spot, option.strike, market.rate, market.div_yield
+    sign = 1.0 if option.is_put else -1.0
+
+    def worth(u: float) -> float:
+        return sign * (k * math.exp(-r * u) - s * math.exp(-q * u))
+
+    candidates = [t]
+    if option.is_american:
+        candidates.append(0.0)
+        if q != r and r * q > 0.0 and q * s / (r * k) > 0.0:
+            u = math.log(q * s / (r * k)) / (q - r)
+            if 0.0 < u < t:
+                candidates.append(u)
+    best_u = max(candidates, key=worth)
+    value = max(worth(best_u), 0.0)
+    delta = -sign * math.exp(-q * best_u) if value > 0.0 else 0.0
+    exercised = value > 0.0 and best_u == 0.0
+    theta = theta_from_pde(s, value, delta, 0.0, r, q, market.vol, exercised)
+    empty = np.empty(0)
+    stats = SolveStats(0, 0, 0, 0, 0, method.name, 0, 0, (s, s), warnings=(
+        f"vol * sqrt(T) = {market.vol * math.sqrt(t):.2g} is below {MIN_SD_FOR_GRID:g}: priced by "
+        "the zero-volatility limit (best deterministic exercise time), no grid solved",
+    ))
+    # rho of the deterministic exercise value; vega that of a European expiring at best_u
+    # (Black-Scholes 1973), which tends to zero except at the forward
+    rho = -sign * best_u * k * math.exp(-r * best_u) if value > 0.0 else 0.0
+    vega = 0.0
+    if best_u > 0.0:
+        sq = market.vol * math.sqrt(best_u)
+        d1 = (math.log(s / k) + (r - q) * best_u) / sq + 0.5 * sq
+        vega = s * math.exp(-q * best_u) * math.sqrt(best_u) * math.exp(-0.5 * d1 * d1) / math.sqrt(
+            2.0 * math.pi
+        )
+    return Result(value, delta, 0.0, theta, vega, rho, 0.4 * market.vol * math.sqrt(t) * s,
+                  ExerciseBoundary(empty, empty), stats, option, market, t, "exact")
 
 
 def price(
@@ -319,11 +394,23 @@ def price(
                 "rate and yield both negative: the exercise region may not touch the grid end, "
                 "so projected SOR was used instead of the direct sweep"
             )
+    if market.vol * math.sqrt(t) < MIN_SD_FOR_GRID:
+        return _zero_vol_limit(option, market, solver, t)
     problem = PDEProblem(
         option.is_put, american, t, market.rate, market.div_yield, market.vol,
         math.log(market.spot / k),
     )
     space_c, time_c, acc_name = _resolve_grid(problem, accuracy, grid)
+    if space_c.n >= MAX_COARSE_NODES:
+        warnings.append(
+            f"the grid reached its cap of {MAX_COARSE_NODES} coarse nodes; spacing is wider than "
+            "the preset asks, so accuracy may be below its target"
+        )
+    if american and space_c.frame == "y":
+        warnings.append(
+            "very low volatility for the drift: solved in the drift-free frame, where the "
+            "exercise value's kink moves between nodes; American accuracy may be below target"
+        )
     space_f = space_c.refined()
     time_f = time_c.refined()
     coarse = solve(problem, space_c, time_c, solver)
@@ -340,9 +427,6 @@ def price(
     if rf.exercised:
         value, delta, gamma = rf.value, rf.delta, rf.gamma
     else:
-        if american:  # an American value is never below its payoff; extrapolation may dip
-            s_over_k = market.spot / k
-            value = max(value, k * max(1.0 - s_over_k if option.is_put else s_over_k - 1.0, 0.0))
         # vega, rho: bumped re-solves on the same two grids (the bump moves no node),
         # each bumped price extrapolated like the price
         pair = ((space_c, time_c), (space_f, time_f))
@@ -357,6 +441,12 @@ def price(
             bumped.append(v_hi + (v_hi - v_lo) / 3.0)
         vega = central_difference(bumped[0], bumped[1], dv)
         rho = central_difference(bumped[2], bumped[3], dr)
+    # extrapolation may step below a bound the true price obeys; the bound is then closer
+    floor = max(k - market.spot, 0.0) if option.is_put else max(market.spot - k, 0.0)
+    value = max(value, floor if american else 0.0)
+    # likewise delta: within [-1, 0] for a put and [0, 1] for a call (e^{-qT} when q < 0)
+    dmax = max(1.0, math.exp(-market.div_yield * t))
+    delta = min(max(delta, -dmax), 0.0) if option.is_put else min(max(delta, 0.0), dmax)
     theta = theta_from_pde(
         market.spot, value, delta, gamma, market.rate, market.div_yield, market.vol, rf.exercised
     )
@@ -374,7 +464,7 @@ def price(
         method=solver.name,
         psor_iterations=sum(r.iterations for r in psor),
         psor_max_sweeps=max(r.max_iterations for r in psor),
-        domain=(k * math.exp(space_f.x_min), k * math.exp(space_f.x_max)),
+        domain=(k * math.exp(fine.x_min), k * math.exp(fine.x_min + (space_f.n - 1) * space_f.h)),
         warnings=tuple(warnings),
     )
     return Result(value, delta, gamma, theta, vega, rho, err, boundary, stats, option, market,
@@ -383,7 +473,7 @@ def price(
 
 def _read(sol: GridSolution, problem: PDEProblem, strike: float) -> GridReadout:
     return read_at_spot(
-        sol.values, sol.payoff, sol.space.x_min, sol.space.h, problem.x_spot, strike,
+        sol.values, sol.payoff, sol.x_min, sol.space.h, problem.x_spot, strike,
         problem.american, float(sol.report.boundary_x[-1]) if problem.american else math.nan,
     )
 

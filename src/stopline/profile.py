@@ -129,7 +129,7 @@ def value_profile(
     dxf, dxxf = (a[::2] for a in _nodal(fine))
     vx = dxf + (dxf - dxc) / 3.0
     vxx = dxxf + (dxxf - dxxc) / 3.0
-    x = space_c.x
+    x = coarse.x  # log-moneyness of the nodes at valuation (any frame)
     s = k * np.exp(x)
     # exercised: beyond the critical spot located on the finer grid (as price() decides)
     x_star = float(fine.report.boundary_x[-1]) if option.is_american else math.nan

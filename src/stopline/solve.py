@@ -6,6 +6,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from . import _kernels
 from ._types import FloatArray
 from .exercise import ExerciseMethod, MarchReport
 from .grid import SpaceGrid, TimeGrid
@@ -46,28 +47,42 @@ class GridSolution:
     Attributes
     ----------
     space, time : SpaceGrid, TimeGrid
-        The grids solved on.
+        The grids solved on (in frame ``space.frame``).
     values : ndarray, shape (space.n,)
         Value / strike at valuation on every node.
     payoff : ndarray, shape (space.n,)
-        Exercise value / strike on every node.
+        Exercise value / strike on every node at valuation.
+    drift : float
+        ``M(T)`` in frame "y", 0 in frame "x": at valuation a node at ``y`` stands for the
+        log-moneyness ``x = y - drift``.
     report : MarchReport
-        Boundary per step and iteration counts.
+        Boundary per step (in log-moneyness) and iteration counts.
     """
 
     space: SpaceGrid
     time: TimeGrid
     values: FloatArray
     payoff: FloatArray
+    drift: float
     report: MarchReport
 
+    @property
+    def x_min(self) -> float:
+        """Log-moneyness of the first node at valuation."""
+        return self.space.x_min - self.drift
 
-def payoff_on(space: SpaceGrid, is_put: bool) -> FloatArray:
-    """Exercise value / strike on the nodes: ``max(1 - e^x, 0)`` or ``max(e^x - 1, 0)``."""
-    s = np.exp(space.x)
-    out = 1.0 - s if is_put else s - 1.0
-    np.maximum(out, 0.0, out=out)
-    out[space.strike_index] = 0.0
+    @property
+    def x(self) -> FloatArray:
+        """Log-moneyness of every node at valuation, shape (space.n,)."""
+        return self.space.x - self.drift
+
+
+def payoff_on(space: SpaceGrid, is_put: bool, shift: float = 1.0) -> FloatArray:
+    """Exercise value / strike on the nodes at a level where ``S / K = e^y shift``."""
+    out = np.empty(space.n)
+    _kernels.obstacle(np.exp(space.x), shift, is_put, out)
+    if shift == 1.0 and space.has_strike:
+        out[space.strike_index] = 0.0
     return out
 
 
@@ -81,13 +96,14 @@ def solve(
     problem : PDEProblem
         What to solve.
     space, time : SpaceGrid, TimeGrid
-        The grid.
+        The grid (``space.frame`` says which frame, see :mod:`stopline.operator`).
     method : DirectSweep or ProjectedSOR
         Solver of the exercise constraint (also used for European options, where it is a
         plain linear solve).
     """
-    payoff = payoff_on(space, problem.is_put)
-    plan = plan_steps(time, space.h, problem.rate, problem.div_yield, problem.vol)
-    v = payoff.copy()
-    report = method.march(v, payoff, space, plan, problem.is_put, problem.american)
-    return GridSolution(space, time, v, payoff, report)
+    plan = plan_steps(time, space.h, problem.rate, problem.div_yield, problem.vol, space.frame)
+    v = payoff_on(space, problem.is_put)
+    report = method.march(v, np.exp(space.x), space, plan, problem.is_put, problem.american)
+    v /= plan.scale[-1]
+    payoff = payoff_on(space, problem.is_put, float(plan.shift[-1]))
+    return GridSolution(space, time, v, payoff, plan.drift, report)

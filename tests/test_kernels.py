@@ -1,0 +1,176 @@
+"""Each numba kernel against a plain-NumPy twin written from the same equations."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+from scipy.linalg import solve_banded
+
+from stopline import _kernels
+from stopline.grid import build_space_grid, build_time_grid
+from stopline.operator import plan_steps
+from stopline.solve import payoff_on
+
+
+def _twin_far(s, df_r, df_q, is_put, american):
+    fwd = (df_r - s * df_q) if is_put else (s * df_q - df_r)
+    intrinsic = max((1 - s) if is_put else (s - 1), 0.0)
+    return max(fwd, 0.0, intrinsic if american else 0.0)
+
+
+def _twin_march(v, x0, h, plan, is_put, american):
+    """Theta steps solved with scipy's banded solver; American by projected iteration."""
+    v = v.copy()
+    n = v.size
+    for k in range(plan.dt.size):
+        s_nodes = np.exp(x0 + h * np.arange(n)) * plan.shift[k]
+        payoff = np.maximum((1 - s_nodes) if is_put else (s_nodes - 1), 0.0)
+        s_lo, s_hi = s_nodes[0], s_nodes[-1]
+        ae, ai = (1 - plan.theta[k]) * plan.dt[k], plan.theta[k] * plan.dt[k]
+        lo, di, up = plan.lo[k], plan.di[k], plan.up[k]
+        vl, vh = (_twin_far(s, plan.df_r[k], plan.df_q[k], is_put, american) for s in (s_lo, s_hi))
+        rhs = v[1:-1] + ae * (lo * v[:-2] + di * v[1:-1] + up * v[2:])
+        rhs[0] += ai * lo * vl
+        rhs[-1] += ai * up * vh
+        m = n - 2
+        ab = np.zeros((3, m))
+        ab[0, 1:] = -ai * up
+        ab[1, :] = 1 - ai * di
+        ab[2, :-1] = -ai * lo
+        new = solve_banded((1, 1), ab, rhs)
+        if american:
+            # projected Gauss-Seidel to full convergence (Cryer 1971), from the linear solution;
+            # the boundary values enter through the neighbours, so take them out of rhs again
+            rhs[0] -= ai * lo * vl
+            rhs[-1] -= ai * up * vh
+            full = np.concatenate(([vl], np.maximum(new, payoff[1:-1]), [vh]))
+            a, b, c = -ai * lo, 1 - ai * di, -ai * up
+            for _ in range(100000):
+                old = full.copy()
+                for j in range(1, n - 1):
+                    gs = (rhs[j - 1] - a * full[j - 1] - c * full[j + 1]) / b
+                    full[j] = max(gs, payoff[j])
+                if np.max(np.abs(full - old)) < 1e-15:
+                    break
+            v = full
+        else:
+            v = np.concatenate(([vl], new, [vh]))
+    return v
+
+
+@pytest.fixture
+def small_case():
+    t, r, q, vol, xs = 0.5, 0.05, 0.02, 0.3, math.log(0.95)
+    sd = vol * math.sqrt(t)
+    space = build_space_grid(xs, sd, (r - q - vol * vol / 2) * t, width_sd=4.0, points_per_sd=6)
+    time = build_time_grid(t, 8)
+    return space, time, plan_steps(time, space.h, r, q, vol)
+
+
+@pytest.mark.parametrize("is_put", [True, False])
+@pytest.mark.parametrize("american", [False, True])
+def test_march_direct_matches_numpy_twin(small_case, is_put: bool, american: bool) -> None:
+    # common practice: the Brennan-Schwartz sweep and a projected Gauss-Seidel iteration solve
+    # the same discrete complementarity problem; the European case is a banded linear solve.
+    space, time, plan = small_case
+    payoff = payoff_on(space, is_put)
+    v = payoff.copy()
+    bnd = np.empty(plan.dt.size)
+    _kernels.march_direct(v, np.exp(space.x), space.x_min, space.h, plan.dt, plan.theta, plan.lo,
+                          plan.di, plan.up, plan.df_r, plan.df_q, plan.shift, plan.scale, is_put, american, bnd)
+    twin = _twin_march(payoff, space.x_min, space.h, plan, is_put, american)
+    np.testing.assert_allclose(v, twin, rtol=0, atol=1e-12)
+
+
+@pytest.mark.parametrize("is_put", [True, False])
+def test_march_psor_matches_direct_kernel_and_twin(small_case, is_put: bool) -> None:
+    # common practice: PSOR converges to the unique solution of the same problem.
+    space, time, plan = small_case
+    payoff = payoff_on(space, is_put)
+    v = payoff.copy()
+    bnd = np.empty(plan.dt.size)
+    iters = np.zeros(plan.dt.size, dtype=np.int64)
+    failed = _kernels.march_psor(v, np.exp(space.x), space.x_min, space.h, plan.dt, plan.theta,
+                                 plan.lo, plan.di, plan.up, plan.df_r, plan.df_q, plan.shift, plan.scale,
+                                 is_put, True, bnd, -1.0, 1e-14, 100000, iters)
+    assert failed == -1 and iters.min() >= 1
+    twin = _twin_march(payoff, space.x_min, space.h, plan, is_put, True)
+    np.testing.assert_allclose(v, twin, rtol=0, atol=1e-11)
+
+
+def test_locate_boundary_matches_twin() -> None:
+    # Smooth pasting: the gap v - payoff grows like c (x - x*)^2 beyond the boundary, so the
+    # located point is exact for such a gap (common practice for sub-grid boundary location).
+    h, x0, xstar = 0.01, -0.5, -0.2337
+    x = x0 + h * np.arange(80)
+    payoff = np.maximum(1 - np.exp(x), 0.0)
+    v = payoff + np.where(x > xstar, 3.0 * (x - xstar) ** 2, 0.0)
+    got = _kernels.locate_boundary(v, payoff, x0, h, True)
+    assert got == pytest.approx(xstar, abs=1e-12)
+    # twin: the same rule written with NumPy (line through the second and third held nodes)
+    j = int(np.argmax(v[1:] > payoff[1:])) + 1
+    s1, s2 = np.sqrt(v[j + 1] - payoff[j + 1]), np.sqrt(v[j + 2] - payoff[j + 2])
+    assert got == pytest.approx(x[j + 1] - s1 / (s2 - s1) * h, abs=1e-14)
+    # no exercise region
+    assert math.isnan(_kernels.locate_boundary(payoff + 1.0, payoff, x0, h, True))
+
+
+def test_thomas_repeat_matches_scipy(rng: np.random.Generator) -> None:
+    # Source: scipy.linalg.solve_banded as the independent tridiagonal solver.
+    n = 50
+    rhs = rng.normal(size=n)
+    a, b, c = -0.7, 2.5, -0.6
+    out = np.empty(n)
+    _kernels.thomas_repeat(rhs, a, b, c, 3, out)
+    ab = np.zeros((3, n))
+    ab[0, 1:], ab[1, :], ab[2, :-1] = c, b, a
+    np.testing.assert_allclose(out, solve_banded((1, 1), ab, rhs), rtol=1e-13, atol=1e-14)
+
+
+def _locate_twin(v: np.ndarray, payoff: np.ndarray, x0: float, h: float, is_put: bool) -> float:
+    """Plain-NumPy twin of _kernels.locate_boundary (written from its docstring)."""
+    n = v.shape[0]
+    exercised = (payoff > 0.0) & (v <= payoff)
+    inner = np.arange(1, n - 1)
+    if is_put:
+        run = inner[np.cumprod(exercised[1 : n - 1]).astype(bool)]
+        j = 1 + run.size
+        if j == 1 or j >= n - 2:
+            return math.nan
+        held = [j + 1, j + 2] if j + 3 <= n - 1 else [j, j + 1]
+        sgn = 1.0
+    else:
+        run = inner[::-1][np.cumprod(exercised[1 : n - 1][::-1]).astype(bool)]
+        j = n - 2 - run.size
+        if j == n - 2 or j <= 1:
+            return math.nan
+        held = [j - 1, j - 2] if j - 3 >= 0 else [j, j - 1]
+        sgn = -1.0
+    sa, sb = np.sqrt(np.maximum(v[held] - payoff[held], 0.0))
+    off = abs(held[0] - j)
+    t = off - sa / (sb - sa) if sb > sa else -0.5
+    t = min(max(t, -3.0), 0.0)
+    x = x0 + j * h + sgn * t * h
+    if is_put:  # not beyond the strike, found from the last exercised node's payoff
+        return min(x, x0 + (j - 1) * h - math.log(1.0 - payoff[j - 1]))
+    return max(x, x0 + (j + 1) * h - math.log(1.0 + payoff[j + 1]))
+
+
+@pytest.mark.parametrize("is_put", [True, False])
+def test_locate_boundary_kernel_matches_numpy_twin(is_put: bool, rng: np.random.Generator) -> None:
+    # common practice: each numba kernel agrees with a plain-NumPy twin; here on gaps
+    # c (x - x*)^2 plus noise, whose vertex the kernel should find to a small fraction of h.
+    h, n = 0.01, 201
+    x0 = -1.0
+    x = x0 + h * np.arange(n)
+    for _ in range(50):
+        star = rng.uniform(-0.6, -0.1) if is_put else rng.uniform(0.1, 0.6)
+        payoff = np.maximum(1.0 - np.exp(x), 0.0) if is_put else np.maximum(np.exp(x) - 1.0, 0.0)
+        side = (x > star) if is_put else (x < star)
+        gap = np.where(side, rng.uniform(0.5, 2.0) * (x - star) ** 2, 0.0)
+        v = payoff + gap * (1.0 + rng.normal(0.0, 1e-3, n))
+        ours = _kernels.locate_boundary(v, payoff, x0, h, is_put)
+        assert ours == pytest.approx(_locate_twin(v, payoff, x0, h, is_put), abs=1e-14)
+        assert abs(ours - star) < 0.01 * h
