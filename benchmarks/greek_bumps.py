@@ -5,10 +5,11 @@ Run: ``python benchmarks/greek_bumps.py`` (from the repository, with stopline in
 
 - the cost of ``price()`` now (with vega and rho) against the two solves of the price alone;
 - the worst vega / rho errors of two placements of the bumped solves:
-  "pair" (the price's own coarse and fine grids; what ``price()`` does) and
-  "coarse+half" (the coarse grid and one with half its resolution; about 2x cheaper),
-  on European contracts against the closed forms and on American ones against central
-  differences of "fine" prices.
+  "pair" (the price's own coarse and fine grids; what ``price()`` does for American
+  options) and "coarse+half" (the coarse grid and one with half its resolution; about 2x
+  cheaper), on European contracts against the closed forms and on American ones against
+  central differences of "fine" prices. (``price()`` gives Europeans their vega and rho from
+  model identities instead, with no re-solve.)
 """
 
 from __future__ import annotations

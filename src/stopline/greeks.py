@@ -16,10 +16,15 @@ How each number in :class:`~stopline.pricing.Result` is computed:
   option is held, ``V_t = -(1/2 s^2 S^2 gamma + (r - q) S delta - r V)``; where it is
   exercised, zero. It is as accurate as delta and gamma; a difference quotient over the last
   (longest, on a graded grid) time step would be first order.
-- **vega, rho** by central differences ``(V(p + dp) - V(p - dp)) / (2 dp)`` of prices
-  re-solved with the volatility or the rate bumped (:data:`VOL_BUMP`, :data:`RATE_BUMP`),
-  on grids built once from the unbumped inputs and reused, so that the bump moves no node.
-  See :func:`central_difference`.
+- **vega, rho** (American) by central differences ``(V(p + dp) - V(p - dp)) / (2 dp)`` of
+  prices re-solved with the volatility or the rate bumped (:data:`VOL_BUMP`,
+  :data:`RATE_BUMP`), on grids built once from the unbumped inputs and reused, so that the
+  bump moves no node. See :func:`central_difference`.
+- **vega, rho** (European, flat inputs) from the solve itself: differentiating
+  ``V = e^{-rT} E[payoff(S_T)]`` gives ``vega = vol T S^2 gamma`` and
+  ``rho = T (S delta - V)`` exactly (:func:`european_vega_rho`); no re-solve is needed.
+  Neither identity holds with early exercise, nor with discrete dividends or term
+  structures.
 
 References
 ----------
@@ -47,6 +52,7 @@ __all__ = [
     "VOL_BUMP",
     "RATE_BUMP",
     "STENCIL",
+    "european_vega_rho",
 ]
 
 #: Nodes in the read-off stencil (a quintic).
@@ -177,6 +183,19 @@ def read_at_spot(
     vxx = float(w[2] @ seg) / (h * h)
     e = math.exp(x_spot)
     return GridReadout(strike * v, vx / e, (vxx - vx) / (strike * e * e), False)
+
+
+def european_vega_rho(
+    spot: float, value: float, delta: float, gamma: float, vol: float, expiry: float
+) -> tuple[float, float]:
+    """Vega and rho of a European option with flat inputs, from its value, delta and gamma.
+
+    ``vega = vol T S^2 gamma`` and ``rho = T (S delta - V)``: identities of the lognormal
+    model with constant rate, yield and volatility, found by differentiating the discounted
+    expected payoff ``e^{-rT} E[payoff(S e^{(r - q - vol^2/2) T + vol W_T})]`` under the
+    parameter (for vega, with an integration by parts in ``W_T``).
+    """
+    return vol * expiry * spot * spot * gamma, expiry * (spot * delta - value)
 
 
 def central_difference(up: float, down: float, bump: float) -> float:

@@ -20,6 +20,7 @@ from .greeks import (
     VOL_BUMP,
     GridReadout,
     central_difference,
+    european_vega_rho,
     read_at_spot,
     theta_from_pde,
 )
@@ -179,11 +180,13 @@ class Result:
         dV/dt, change in value per year of calendar time (negative when the option loses
         value as time passes), from the Black-Scholes equation at valuation.
     vega : float
-        dV/dvol per unit of volatility (divide by 100 for one vol point), by a central
-        difference of re-solved prices with the vol bumped by 1 % of itself.
+        dV/dvol per unit of volatility (divide by 100 for one vol point). American: a central
+        difference of re-solved prices with the vol bumped by 1 % of itself; European:
+        ``vol T S^2 gamma``.
     rho : float
-        dV/drate per unit of rate (divide by 10,000 for one basis point), by a central
-        difference of re-solved prices with the rate bumped by 1e-3.
+        dV/drate per unit of rate (divide by 10,000 for one basis point). American: a central
+        difference of re-solved prices with the rate bumped by 1e-3; European:
+        ``T (S delta - V)``.
     error_estimate : float
         Estimated absolute error of the finer grid's price, ``|V_fine - V_coarse| / 3``; the
         extrapolated price is usually well inside it.
@@ -339,11 +342,13 @@ def price(
     the equation at valuation. Vega and rho are central differences of prices re-solved with
     the vol (rate) bumped up and down, on the same two grids (built once from the unbumped
     inputs, so a bump moves no node), each bumped price extrapolated like the price: four
-    extra solves per Greek, ten solves in all, so a call costs four to five times the price
-    alone (measured at "standard": about 10 ms against 2.5 ms). Solving the bumps on the
-    coarse grid and its halving instead would cost about twice the price alone but was
+    extra solves per Greek, ten solves in all, so an American price costs four to five times
+    the price alone (measured at "standard": about 10 ms against 2.5 ms). Solving the bumps
+    on the coarse grid and its halving instead would cost about twice the price alone but was
     measured to leave American vegas and rhos up to 0.3 % off (0.04 % as done here); see
-    ``benchmarks/greek_bumps.py`` and :mod:`stopline.greeks`.
+    ``benchmarks/greek_bumps.py``. A European option needs no re-solve: with flat inputs
+    ``vega = vol T S^2 gamma`` and ``rho = T (S delta - V)`` hold exactly in the model.
+    See :mod:`stopline.greeks`.
 
     Parameters
     ----------
@@ -426,7 +431,7 @@ def price(
         value, delta, gamma = rf.value, rf.delta, rf.gamma  # boundary: do not extrapolate
     if rf.exercised:
         value, delta, gamma = rf.value, rf.delta, rf.gamma
-    else:
+    elif american:
         # vega, rho: bumped re-solves on the same two grids (the bump moves no node),
         # each bumped price extrapolated like the price
         pair = ((space_c, time_c), (space_f, time_f))
@@ -447,6 +452,9 @@ def price(
     # likewise delta: within [-1, 0] for a put and [0, 1] for a call (e^{-qT} when q < 0)
     dmax = max(1.0, math.exp(-market.div_yield * t))
     delta = min(max(delta, -dmax), 0.0) if option.is_put else min(max(delta, 0.0), dmax)
+    if not american:
+        # European with flat inputs: exact identities of the model, no re-solve needed
+        vega, rho = european_vega_rho(market.spot, value, delta, gamma, market.vol, t)
     theta = theta_from_pde(
         market.spot, value, delta, gamma, market.rate, market.div_yield, market.vol, rf.exercised
     )
