@@ -140,15 +140,32 @@ GESKE_JOHNSON = [
     (40, 0.3, 0.0833, 1.3099), (40, 0.3, 0.3333, 2.4825), (40, 0.3, 0.5833, 3.1696),
     (45, 0.3, 0.0833, 5.0597), (45, 0.3, 0.3333, 5.7056), (45, 0.3, 0.5833, 6.2436),
     (35, 0.4, 0.0833, 0.2466), (35, 0.4, 0.3333, 1.3460), (35, 0.4, 0.5833, 2.1549),
-    (40, 0.4, 0.0833, 1.7681), (40, 0.4, 0.3333, 3.3874), (40, 0.4, 0.5833, 4.3526),
-    (45, 0.4, 0.0833, 5.2868), (45, 0.4, 0.3333, 6.5099), (45, 0.4, 0.5833, 7.3830),
+    (40, 0.4, 0.0833, 1.7681), (40, 0.4, 0.3333, 3.3874),
+    # recalled entry 1.1e-4 below the converged 4.35271 (Leisen-Reimer and BBSR trees of
+    # stopline.reference agree to 2e-6): kept at the stated tolerance, expected to fail
+    pytest.param(40, 0.4, 0.5833, 4.3526, marks=pytest.mark.xfail(strict=True, reason="recalled value off by 1.1e-4")),
+    (45, 0.4, 0.0833, 5.2868),
+    # recalled 6.5099 sits 1.0e-4 above the converged 6.50980 (which rounds to 6.5098): at the
+    # edge of the stated tolerance; the case is checked against an independent tree below
+    pytest.param(45, 0.4, 0.3333, 6.5099, marks=pytest.mark.xfail(strict=False, reason="recalled value at the tolerance edge")),
+    (45, 0.4, 0.5833, 7.3830),
 ]
 
 
 @pytest.mark.parametrize("k,vol,t,expected", GESKE_JOHNSON)
 def test_geske_johnson_table(k: float, vol: float, t: float, expected: float) -> None:
     res = price(Option("put", float(k), t), Market(40.0, 0.0488, vol))
-    assert res.price == pytest.approx(expected, abs=1.0e-4 + 0.5e-4)  # table printed to 4 dp
+    assert res.price == pytest.approx(expected, abs=1.0e-4)
+
+
+@pytest.mark.parametrize("k,vol,t", [(45.0, 0.4, 0.3333), (40.0, 0.4, 0.5833)])
+def test_geske_johnson_doubtful_entries_against_tree(k: float, vol: float, t: float) -> None:
+    # Source: Leisen & Reimer (1996) binomial tree with two-step extrapolation
+    # (stopline.reference, independent of the PDE), 2001 steps: ~1e-6 relative.
+    from stopline.reference import lr_extrapolated_price
+
+    tree = lr_extrapolated_price("put", "american", 40.0, k, t, 0.0488, 0.0, vol, 2001)
+    assert price(Option("put", k, t), Market(40.0, 0.0488, vol)).price == pytest.approx(tree, abs=2e-5)
 
 
 @pytest.mark.parametrize("s,expected", [(90.0, 11.4927), (100.0, 6.0904), (110.0, 2.9865), (120.0, 1.3671)])

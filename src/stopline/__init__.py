@@ -3,15 +3,24 @@
 from __future__ import annotations
 
 from .contract import Option
+from .crosscheck import CheckSettings, Tolerance, check_row, run_crosscheck
 from .errors import ConvergenceError, InputError, StoplineError
 from .exercise import METHODS, DirectSweep, ProjectedSOR
-from .market import Market
+from .implied import ImpliedVolError, ImpliedVolResult, implied_vol, implied_vol_detail
+from .market import Market, parse_dividends
 from .pricing import PRESETS, ExerciseBoundary, GridSpec, Result, SolveStats, price
 from .profile import ValueProfile, value_profile
+from .termstructure import PiecewiseConstant
 
 __all__ = [
+    "run_crosscheck",
+    "check_row",
+    "CheckSettings",
+    "Tolerance",
     "Option",
     "Market",
+    "PiecewiseConstant",
+    "parse_dividends",
     "price",
     "Result",
     "ExerciseBoundary",
@@ -26,5 +35,9 @@ __all__ = [
     "ConvergenceError",
     "value_profile",
     "ValueProfile",
+    "implied_vol",
+    "implied_vol_detail",
+    "ImpliedVolResult",
+    "ImpliedVolError",
 ]
 __version__ = "0.1.0"

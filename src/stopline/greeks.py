@@ -16,10 +16,11 @@ How each number in :class:`~stopline.pricing.Result` is computed:
   option is held, ``V_t = -(1/2 s^2 S^2 gamma + (r - q) S delta - r V)``; where it is
   exercised, zero. It is as accurate as delta and gamma; a difference quotient over the last
   (longest, on a graded grid) time step would be first order.
-- **vega, rho** (American) by central differences ``(V(p + dp) - V(p - dp)) / (2 dp)`` of
-  prices re-solved with the volatility or the rate bumped (:data:`VOL_BUMP`,
-  :data:`RATE_BUMP`), on grids built once from the unbumped inputs and reused, so that the
-  bump moves no node. See :func:`central_difference`.
+- **vega, rho** (American, or with dividends or term structures) by central differences
+  ``(V(p + dp) - V(p - dp)) / (2 dp)`` of prices re-solved with the market's volatility or
+  rate shifted in parallel (:data:`VOL_BUMP`, :data:`RATE_BUMP`; a curve moves as a whole,
+  see :func:`bumped_market`), on grids built once from the unbumped inputs and reused, so
+  that the bump moves no node. See :func:`central_difference`.
 - **vega, rho** (European, flat inputs) from the solve itself: differentiating
   ``V = e^{-rT} E[payoff(S_T)]`` gives ``vega = vol T S^2 gamma`` and
   ``rho = T (S delta - V)`` exactly (:func:`european_vega_rho`); no re-solve is needed.
@@ -36,12 +37,17 @@ physical problems, Phil. Trans. R. Soc. A 210.
 
 from __future__ import annotations
 
+import copy
 import math
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from ._types import FloatArray
+
+if TYPE_CHECKING:
+    from .market import Market
 
 __all__ = [
     "GridReadout",
@@ -53,6 +59,7 @@ __all__ = [
     "RATE_BUMP",
     "STENCIL",
     "european_vega_rho",
+    "bumped_market",
 ]
 
 #: Nodes in the read-off stencil (a quintic).
@@ -196,6 +203,22 @@ def european_vega_rho(
     parameter (for vega, with an integration by parts in ``W_T``).
     """
     return vol * expiry * spot * spot * gamma, expiry * (spot * delta - value)
+
+
+def bumped_market(market: Market, *, vol: float = 0.0, rate: float = 0.0) -> Market:
+    """A copy of ``market`` with its vol and rate shifted in parallel by ``vol`` and ``rate``.
+
+    Flat numbers and term structures (:class:`~stopline.PiecewiseConstant`, which adds a
+    number to every piece) shift alike. The copy skips the input range checks on purpose: a
+    bump may step just outside the accepted range (vol 5 + 1 %), and the market itself was
+    checked.
+    """
+    out = copy.copy(market)
+    if vol:
+        object.__setattr__(out, "vol", market.vol + vol)
+    if rate:
+        object.__setattr__(out, "rate", market.rate + rate)
+    return out
 
 
 def central_difference(up: float, down: float, bump: float) -> float:

@@ -9,7 +9,10 @@ preset's tolerance.
 Time: levels in time to expiry ``tau`` graded towards expiry, ``tau_k = T (k / m)^2``, since
 the American exercise boundary moves like ``sqrt(tau)`` near expiry and uniform steps lose
 order there. The first intervals are each taken as two fully implicit half steps (Rannacher
-1984) to damp the Crank-Nicolson ringing that the payoff kink would otherwise cause.
+1984) to damp the Crank-Nicolson ringing that the payoff kink would otherwise cause. With
+ex-dividend dates or term-structure breakpoints, :class:`SegmentedTimeGrid` puts a level on
+each and grades every segment afresh; a segment after an ex-date (where the exercise value
+makes a new kink) also starts with implicit half steps.
 """
 
 from __future__ import annotations
@@ -21,7 +24,15 @@ import numpy as np
 
 from ._types import FloatArray
 
-__all__ = ["SpaceGrid", "TimeGrid", "build_space_grid", "build_time_grid"]
+__all__ = [
+    "SpaceGrid",
+    "TimeGrid",
+    "SegmentedTimeGrid",
+    "build_space_grid",
+    "build_time_grid",
+    "build_segmented_time_grid",
+    "split_levels",
+]
 
 
 @dataclass(frozen=True)
@@ -202,3 +213,118 @@ def build_time_grid(
     theta = np.full(dt.shape, 0.5)
     theta[: 2 * r] = 1.0
     return TimeGrid(levels, tau_all[1:].copy(), dt, theta)
+
+
+@dataclass(frozen=True)
+class SegmentedTimeGrid(TimeGrid):
+    """Graded time levels in segments whose ends are fixed levels (ex-dates, breakpoints).
+
+    Each segment ``(bounds[i-1], bounds[i]]`` in time to expiry has its own graded levels,
+    ``bounds[i-1] + L_i (k / m_i) ** grading``, so a segment starting where the value has a
+    kink (expiry, an ex-dividend date) is resolved like expiry itself; such segments
+    (``restart[i]``) also begin with Rannacher half steps. Refining doubles every ``m_i``,
+    so every old level is kept.
+
+    Attributes
+    ----------
+    bounds : tuple of float
+        Time to expiry at the end of each segment, increasing; the last is the expiry.
+    restart : tuple of bool
+        Whether each segment begins with Rannacher half steps.
+    segment_levels : tuple of int
+        Graded intervals ``m_i`` per segment (``levels`` is their sum).
+    segment_stop : tuple of int
+        Index in ``tau`` one past each segment's last step.
+    """
+
+    bounds: tuple[float, ...] = ()
+    restart: tuple[bool, ...] = ()
+    segment_levels: tuple[int, ...] = ()
+    segment_stop: tuple[int, ...] = ()
+
+    def refined(self, rannacher: int | None = None, grading: float = 2.0) -> SegmentedTimeGrid:
+        """The grid with twice the intervals in every segment (every old level kept)."""
+        return build_segmented_time_grid(
+            self.bounds, self.restart, tuple(2 * m for m in self.segment_levels),
+            rannacher=rannacher, grading=grading,
+        )
+
+
+def split_levels(
+    bounds: tuple[float, ...],
+    levels: int,
+    restart: tuple[bool, ...] | None = None,
+    min_levels: int = 2,
+) -> tuple[int, ...]:
+    """Share ``levels`` graded intervals among segments.
+
+    A segment that restarts (after a kink: expiry, an ex-date) of length ``L`` gets
+    ``levels sqrt(L / T)`` intervals, so that its first graded steps are as short as those of
+    an unsegmented grid, ``T / levels^2``; others get ``levels L / T``, a share of the
+    length. Short restarting segments thus get relatively more levels (measured on an
+    American put with an ex-date 0.05 years before expiry: the same error for a fifth to a
+    twentieth of the steps of a share by length).
+    """
+    expiry = bounds[-1]
+    starts = (0.0,) + tuple(bounds[:-1])
+    flags = restart if restart is not None else (False,) * len(bounds)
+    out = []
+    for a, b, again in zip(starts, bounds, flags, strict=True):
+        frac = (b - a) / expiry
+        out.append(max(min_levels, round(levels * (math.sqrt(frac) if again else frac))))
+    return tuple(out)
+
+
+def build_segmented_time_grid(
+    bounds: tuple[float, ...],
+    restart: tuple[bool, ...],
+    segment_levels: tuple[int, ...],
+    *,
+    rannacher: int | None = None,
+    grading: float = 2.0,
+) -> SegmentedTimeGrid:
+    """Time levels with fixed segment ends, graded afresh in every segment.
+
+    Parameters
+    ----------
+    bounds : tuple of float
+        Time to expiry at each segment's end, strictly increasing, > 0; the last is ``T``.
+    restart : tuple of bool
+        Per segment: start with Rannacher half steps (the first segment should: it starts at
+        the payoff).
+    segment_levels : tuple of int
+        Graded intervals per segment, each >= 1.
+    rannacher : int, optional
+        Half-stepped intervals at the start of a restarting segment; default as in
+        :func:`build_time_grid`, from the segment's own level count.
+    grading : float
+        Exponent of the grading within each segment.
+
+    References
+    ----------
+    Rannacher, R. (1984), Numerische Mathematik 43 (implicit start after non-smooth data).
+    """
+    taus: list[FloatArray] = []
+    thetas: list[FloatArray] = []
+    stops: list[int] = []
+    start = 0.0
+    count = 0
+    for end, again, m in zip(bounds, restart, segment_levels, strict=True):
+        r = None if again else 0
+        if again and rannacher is not None:
+            r = rannacher
+        seg = build_time_grid(end - start, m, rannacher=r, grading=grading)
+        tau = start + seg.tau
+        tau[-1] = end
+        taus.append(tau)
+        thetas.append(seg.theta)
+        count += tau.shape[0]
+        stops.append(count)
+        start = end
+    tau_all = np.concatenate(taus)
+    dt = np.diff(np.concatenate(([0.0], tau_all)))
+    return SegmentedTimeGrid(
+        int(sum(segment_levels)), tau_all, dt, np.concatenate(thetas),
+        tuple(float(b) for b in bounds), tuple(bool(x) for x in restart),
+        tuple(int(m) for m in segment_levels), tuple(stops),
+    )

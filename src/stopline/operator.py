@@ -23,7 +23,7 @@ need a tiny spacing over a long domain. Its price for that: the exercise value's
 between nodes, so American errors are less regular and need shorter steps.
 
 The coefficients do not depend on the node, so a step is described by three numbers;
-time-dependent rates, yields or vols give one triple per step.
+time-dependent rates, yields or vols (:mod:`stopline.termstructure`) give one triple per step.
 """
 
 from __future__ import annotations
@@ -34,6 +34,7 @@ import numpy as np
 
 from ._types import FloatArray
 from .grid import TimeGrid
+from .termstructure import Curve, PiecewiseConstant, curve_values
 
 __all__ = ["StepPlan", "plan_steps", "coefficients", "choose_frame"]
 
@@ -75,6 +76,14 @@ class StepPlan:
         """``M(T)``: how far the frame has moved by valuation (``x = y - M(T)``)."""
         return float(-np.log(self.shift[-1])) if self.shift.size else 0.0
 
+    def part(self, start: int, stop: int) -> StepPlan:
+        """The plan of steps ``start .. stop - 1`` (views, no copies)."""
+        sl = slice(start, stop)
+        return StepPlan(
+            self.tau[sl], self.dt[sl], self.theta[sl], self.lo[sl], self.di[sl], self.up[sl],
+            self.df_r[sl], self.df_q[sl], self.shift[sl], self.scale[sl],
+        )
+
 
 def coefficients(
     h: float, rate: float, div_yield: float, vol: float, frame: str = "x"
@@ -94,9 +103,9 @@ def choose_frame(sd: float, drift: float, h: float, vol: float, mu: float) -> st
 
 
 def plan_steps(
-    time: TimeGrid, h: float, rate: float, div_yield: float, vol: float, frame: str = "x"
+    time: TimeGrid, h: float, rate: Curve, div_yield: Curve, vol: Curve, frame: str = "x"
 ) -> StepPlan:
-    """Per-step operator coefficients, discount factors and frame shifts for flat market data.
+    """Per-step operator coefficients, discount factors and frame shifts.
 
     Parameters
     ----------
@@ -104,24 +113,48 @@ def plan_steps(
         The steps.
     h : float
         Spacing of the grid.
-    rate, div_yield, vol : float
-        Continuously compounded rate and yield, annual volatility.
+    rate, div_yield, vol : float or PiecewiseConstant
+        Continuously compounded rate and yield, annual volatility; flat, or a curve in
+        calendar time from valuation (``t = T - tau``). A curve is evaluated at each step's
+        midpoint: put the curve's breakpoints on time levels (see
+        :class:`~stopline.grid.SegmentedTimeGrid`) so that no step straddles one. Discount
+        factors and the frame's shift are exact integrals of the curves.
     frame : {"x", "y"}
         Coordinate of the grid (module docstring).
     """
-    lo, di, up = coefficients(h, rate, div_yield, vol, frame)
-    ones = np.ones_like(time.dt)
-    mu = rate - div_yield - 0.5 * vol * vol if frame == "y" else 0.0
-    df_r = np.exp(-rate * time.tau)
+    expiry = time.expiry
+    tau_prev = time.tau - time.dt
+    t_mid = np.maximum(expiry - 0.5 * (time.tau + tau_prev), 0.0)
+    r = curve_values(rate, t_mid)
+    q = curve_values(div_yield, t_mid)
+    v = curve_values(vol, t_mid)
+    lo, di, up = coefficients(h, r, q, v, frame)  # type: ignore[arg-type]
+    int_r = _integral_to_expiry(rate, time.tau, expiry)
+    int_q = _integral_to_expiry(div_yield, time.tau, expiry)
+    if frame == "y":
+        int_v2 = _integral_to_expiry(vol, time.tau, expiry, power=2)
+        shift = np.exp(-(int_r - int_q - 0.5 * int_v2))
+    else:
+        shift = np.ones_like(time.dt)
     return StepPlan(
         tau=time.tau,
         dt=time.dt,
         theta=time.theta,
-        lo=lo * ones,
-        di=di * ones,
-        up=up * ones,
-        df_r=df_r,
-        df_q=np.exp(-div_yield * time.tau),
-        shift=np.exp(-mu * time.tau),
-        scale=1.0 / df_r if frame == "y" else ones,
+        lo=lo,
+        di=di,
+        up=up,
+        df_r=np.exp(-int_r),
+        df_q=np.exp(-int_q),
+        shift=shift,
+        scale=np.exp(int_r) if frame == "y" else np.ones_like(time.dt),
     )
+
+
+def _integral_to_expiry(curve: Curve, tau: FloatArray, expiry: float, power: int = 1) -> FloatArray:
+    """``int_{T - tau}^{T} c(t)^power dt`` for each ``tau``."""
+    if isinstance(curve, PiecewiseConstant):
+        if power != 1:
+            curve = PiecewiseConstant(curve.times, tuple(x**power for x in curve.values))
+        t0 = np.maximum(expiry - tau, 0.0)
+        return curve.cumulative(np.full_like(tau, expiry)) - curve.cumulative(t0)
+    return float(curve) ** power * tau

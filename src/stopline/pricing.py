@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import dataclasses
 import math
 from dataclasses import dataclass, field
 
@@ -19,15 +18,23 @@ from .greeks import (
     RATE_BUMP,
     VOL_BUMP,
     GridReadout,
+    bumped_market,
     central_difference,
     european_vega_rho,
     read_at_spot,
     theta_from_pde,
 )
-from .grid import SpaceGrid, TimeGrid, build_space_grid, build_time_grid
+from .grid import SpaceGrid, TimeGrid, build_space_grid
 from .market import Market
 from .operator import choose_frame
-from .solve import GridSolution, PDEProblem, solve
+from .solve import (
+    GridSolution,
+    PDEProblem,
+    problem_from_market,
+    solve,
+    theta_at_valuation,
+    time_grid_for,
+)
 
 __all__ = [
     "AccuracyPreset",
@@ -115,10 +122,12 @@ class ExerciseBoundary:
         Time to expiry of each level, increasing, ending at the option's expiry.
     spot : ndarray, shape (n_levels,)
         Critical spot at each level: a put is exercised at or below it, a call at or above.
-        NaN where the option has no exercise region (European, or never optimal). The
-        least-squares monotone fit of ``raw_spot`` (see :mod:`stopline.boundary`): equal to it
-        except in the first few steps after expiry, where the located points may step back by
-        up to about one grid spacing.
+        NaN where the option has no exercise region (European, or never optimal). With flat
+        inputs and no cash dividends, the least-squares monotone fit of ``raw_spot`` (see
+        :mod:`stopline.boundary`): equal to it except in the first few steps after expiry,
+        where the located points may step back by up to about one grid spacing. With
+        dividends or term structures the true boundary need not be monotone (it jumps at
+        ex-dates) and ``spot`` is ``raw_spot``.
     raw_spot : ndarray, shape (n_levels,)
         The critical spot as located after each step, below the grid spacing (finer grid).
     """
@@ -180,12 +189,14 @@ class Result:
         dV/dt, change in value per year of calendar time (negative when the option loses
         value as time passes), from the Black-Scholes equation at valuation.
     vega : float
-        dV/dvol per unit of volatility (divide by 100 for one vol point). American: a central
-        difference of re-solved prices with the vol bumped by 1 % of itself; European:
+        dV/dvol per unit of volatility (divide by 100 for one vol point), for a parallel shift
+        of a vol curve. American, or with dividends or curves: a central difference of
+        re-solved prices with the vol bumped by 1 % of itself; European with flat inputs:
         ``vol T S^2 gamma``.
     rho : float
-        dV/drate per unit of rate (divide by 10,000 for one basis point). American: a central
-        difference of re-solved prices with the rate bumped by 1e-3; European:
+        dV/drate per unit of rate (divide by 10,000 for one basis point), for a parallel shift
+        of a rate curve. American, or with dividends or curves: a central difference of
+        re-solved prices with the rate bumped by 1e-3; European with flat inputs:
         ``T (S delta - V)``.
     error_estimate : float
         Estimated absolute error of the finer grid's price, ``|V_fine - V_coarse| / 3``; the
@@ -242,12 +253,13 @@ def _resolve_grid(
             "n_max": MAX_COARSE_NODES,
         }
     space = build_space_grid(problem.x_spot, sd, drift, width_sd=width, **kwargs)
-    if choose_frame(sd, drift, space.h, problem.vol, mu) == "y":
+    # cash dividends are applied in frame "x" (the dropped spot of a node is a fixed node)
+    if choose_frame(sd, drift, space.h, problem.vol, mu) == "y" and not problem.has_events:
         space = build_space_grid(problem.x_spot, sd, drift, width_sd=width, frame="y", **kwargs)
         if problem.american:
             # steps short enough that the exercise value's kink moves about a node per step
             levels = max(levels, min(math.ceil(abs(drift) / space.h), 20 * levels))
-    return space, build_time_grid(problem.expiry, levels), name
+    return space, time_grid_for(problem, levels), name
 
 
 def _decay_length(rate: float, mu: float, vol: float) -> float:
@@ -391,20 +403,23 @@ def price(
         return _expired(option, market, solver, t)
     k = option.strike
     american = option.is_american
-    warnings: list[str] = []
-    if american and _two_boundaries_possible(option.is_put, market.rate, market.div_yield):
+    problem = problem_from_market(option, market, t)
+    warnings: list[str] = list(problem.warnings)
+    if american and _two_boundaries_possible(option.is_put, problem.rate, problem.div_yield):
         if solver.name == "direct":
             solver = ProjectedSOR()
             warnings.append(
                 "rate and yield both negative: the exercise region may not touch the grid end, "
                 "so projected SOR was used instead of the direct sweep"
             )
-    if market.vol * math.sqrt(t) < MIN_SD_FOR_GRID:
+    if problem.vol * math.sqrt(t) < MIN_SD_FOR_GRID:
+        if problem.curves is not None or problem.dividend_tau:
+            raise InputError(
+                "vol", market.vol,
+                f"vol * sqrt(T) below {MIN_SD_FOR_GRID:g} is not supported with cash dividends "
+                "or term structures",
+            )
         return _zero_vol_limit(option, market, solver, t)
-    problem = PDEProblem(
-        option.is_put, american, t, market.rate, market.div_yield, market.vol,
-        math.log(market.spot / k),
-    )
     space_c, time_c, acc_name = _resolve_grid(problem, accuracy, grid)
     if space_c.n >= MAX_COARSE_NODES:
         warnings.append(
@@ -430,16 +445,18 @@ def price(
     if rf.exercised != rc.exercised:  # the grids put the spot on different sides of the
         value, delta, gamma = rf.value, rf.delta, rf.gamma  # boundary: do not extrapolate
     if rf.exercised:
-        value, delta, gamma = rf.value, rf.delta, rf.gamma
-    elif american:
-        # vega, rho: bumped re-solves on the same two grids (the bump moves no node),
-        # each bumped price extrapolated like the price
+        # exercised at once: the intrinsic value of the real spot (also under escrowed dividends)
+        value = max(k - market.spot, 0.0) if option.is_put else max(market.spot - k, 0.0)
+        delta, gamma = rf.delta, rf.gamma
+    flat = problem.curves is None and not problem.dividend_tau
+    if not rf.exercised and (american or not flat):
+        # vega, rho: re-solves with the market's vol (rate) shifted in parallel, on the same
+        # two grids (the bump moves no node), each bumped price extrapolated like the price
         pair = ((space_c, time_c), (space_f, time_f))
         dv, dr = VOL_BUMP * problem.vol, RATE_BUMP
         bumped = []
-        for changes in ({"vol": problem.vol + dv}, {"vol": problem.vol - dv},
-                        {"rate": problem.rate + dr}, {"rate": problem.rate - dr}):
-            p = dataclasses.replace(problem, **changes)
+        for changes in ({"vol": dv}, {"vol": -dv}, {"rate": dr}, {"rate": -dr}):
+            p = problem_from_market(option, bumped_market(market, **changes), t)
             lo, hi = (solve(p, sg, tg, solver) for sg, tg in pair)
             psor += [lo.report, hi.report]
             v_lo, v_hi = _read(lo, p, k).value, _read(hi, p, k).value
@@ -450,19 +467,17 @@ def price(
     floor = max(k - market.spot, 0.0) if option.is_put else max(market.spot - k, 0.0)
     value = max(value, floor if american else 0.0)
     # likewise delta: within [-1, 0] for a put and [0, 1] for a call (e^{-qT} when q < 0)
-    dmax = max(1.0, math.exp(-market.div_yield * t))
+    dmax = max(1.0, math.exp(-problem.div_yield * t))
     delta = min(max(delta, -dmax), 0.0) if option.is_put else min(max(delta, 0.0), dmax)
-    if not american:
+    if not american and flat:
         # European with flat inputs: exact identities of the model, no re-solve needed
-        vega, rho = european_vega_rho(market.spot, value, delta, gamma, market.vol, t)
-    theta = theta_from_pde(
-        market.spot, value, delta, gamma, market.rate, market.div_yield, market.vol, rf.exercised
-    )
+        vega, rho = european_vega_rho(market.spot, value, delta, gamma, problem.vol, t)
+    theta = theta_at_valuation(problem, market.spot, k, value, delta, gamma, rf.exercised)
     err = abs(rf.value - rc.value) / 3.0
     raw = k * np.exp(fine.report.boundary_x)
-    boundary = ExerciseBoundary(
-        fine.time.tau.copy(), monotone_fit(raw, decreasing=option.is_put), raw
-    )
+    # with flat inputs and no dividends the true boundary is monotone in time to expiry
+    spot_b = monotone_fit(raw, decreasing=option.is_put) if flat else raw.copy()
+    boundary = ExerciseBoundary(fine.boundary_times.copy(), spot_b, raw)
     stats = SolveStats(
         space_points=space_f.n,
         time_levels=time_f.levels,

@@ -26,7 +26,7 @@ from .errors import InputError
 from .exercise import ExerciseMethod, get_method
 from .greeks import fd_weights
 from .market import Market
-from .solve import GridSolution, PDEProblem, solve
+from .solve import GridSolution, problem_from_market, solve
 
 __all__ = ["ValueProfile", "value_profile"]
 
@@ -115,10 +115,7 @@ def value_profile(
     if t == 0.0:
         raise InputError("expiry", option.expiry, "is the valuation date: no profile to draw")
     k = option.strike
-    problem = PDEProblem(
-        option.is_put, option.is_american, t, market.rate, market.div_yield, market.vol,
-        math.log(market.spot / k),
-    )
+    problem = problem_from_market(option, market, t)
     space_c, time_c, acc_name = _resolve_grid(problem, accuracy, grid)
     coarse = solve(problem, space_c, time_c, solver)
     fine = solve(problem, space_c.refined(), time_c.refined(), solver)
@@ -130,7 +127,7 @@ def value_profile(
     vx = dxf + (dxf - dxc) / 3.0
     vxx = dxxf + (dxxf - dxxc) / 3.0
     x = coarse.x  # log-moneyness of the nodes at valuation (any frame)
-    s = k * np.exp(x)
+    s = k * (np.exp(x) + problem.escrow_pv)  # escrowed model: nodes are spot less PV(D)
     # exercised: beyond the critical spot located on the finer grid (as price() decides)
     x_star = float(fine.report.boundary_x[-1]) if option.is_american else math.nan
     if math.isfinite(x_star):

@@ -1,18 +1,44 @@
-"""One finite-difference solve on one grid: payoff, march, values at valuation."""
+"""One finite-difference solve on one grid: payoff, march, values at valuation.
+
+With cash dividends the march stops at every ex-date (a time level), applies the dividend
+(:mod:`stopline.dividends`), and goes on; with term structures the per-step coefficients
+come from the curves (:func:`stopline.operator.plan_steps`).
+"""
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+import math
+from dataclasses import dataclass, replace
 
 import numpy as np
 
 from . import _kernels
 from ._types import FloatArray
+from .contract import Option
+from .dividends import dividend_schedule, present_value
+from .errors import InputError
 from .exercise import ExerciseMethod, MarchReport
-from .grid import SpaceGrid, TimeGrid
-from .operator import plan_steps
+from .greeks import theta_from_pde
+from .grid import (
+    SpaceGrid,
+    TimeGrid,
+    build_segmented_time_grid,
+    build_time_grid,
+    split_levels,
+)
+from .market import Market
+from .operator import StepPlan, plan_steps
+from .termstructure import Curve, PiecewiseConstant
 
-__all__ = ["PDEProblem", "GridSolution", "payoff_on", "solve"]
+__all__ = [
+    "PDEProblem",
+    "GridSolution",
+    "payoff_on",
+    "solve",
+    "problem_from_market",
+    "time_grid_for",
+    "theta_at_valuation",
+]
 
 
 @dataclass(frozen=True)
@@ -26,9 +52,23 @@ class PDEProblem:
     expiry : float
         Time to expiry in years, > 0.
     rate, div_yield, vol : float
-        Flat market data.
+        Flat market data; with term structures, the averages of rate and yield and the
+        root-mean-square vol over the life (so ``vol * sqrt(T)`` and the drift size the grid).
     x_spot : float
-        ``ln(spot / strike)``.
+        ``ln(spot / strike)``; for escrowed dividends ``ln((spot - PV(D)) / strike)``.
+    curves : tuple of (rate, div_yield, vol), optional
+        Term structures (flat numbers or :class:`~stopline.PiecewiseConstant` in years from
+        valuation) used by the march instead of the flat values.
+    dividend_tau : tuple of float
+        Time to expiry of each ex-date, decreasing order of ex-date is not required.
+    dividend_amount : tuple of float
+        Cash amount / strike of each dividend.
+    dividend_model : {"spot", "escrowed"}
+        How the dividends act (:mod:`stopline.dividends`).
+    escrow_pv : float
+        Present value at valuation of the dividends / strike (escrowed model, else 0).
+    warnings : tuple of str
+        Notes from building the problem (dividends ignored ...).
     """
 
     is_put: bool
@@ -38,6 +78,28 @@ class PDEProblem:
     div_yield: float
     vol: float
     x_spot: float
+    curves: tuple[Curve, Curve, Curve] | None = None
+    dividend_tau: tuple[float, ...] = ()
+    dividend_amount: tuple[float, ...] = ()
+    dividend_model: str = "spot"
+    escrow_pv: float = 0.0
+    warnings: tuple[str, ...] = ()
+
+    @property
+    def coefficients(self) -> tuple[Curve, Curve, Curve]:
+        """Rate, yield and vol as the march uses them (curves if given, else flat)."""
+        return self.curves if self.curves is not None else (self.rate, self.div_yield, self.vol)
+
+    @property
+    def escrowed(self) -> bool:
+        """True when dividends are modelled as escrowed."""
+        return self.dividend_model == "escrowed" and bool(self.dividend_tau)
+
+    @property
+    def has_events(self) -> bool:
+        """True when the march must stop at ex-dates (all but escrowed European options,
+        which are Black-Scholes on ``S - PV(D)`` and need only the shifted spot)."""
+        return bool(self.dividend_tau) and not (self.escrowed and not self.american)
 
 
 @dataclass(frozen=True)
@@ -57,6 +119,9 @@ class GridSolution:
         log-moneyness ``x = y - drift``.
     report : MarchReport
         Boundary per step (in log-moneyness) and iteration counts.
+    boundary_tau : ndarray, optional
+        Times of the boundary entries when they are not one per step (see
+        :attr:`boundary_times`).
     """
 
     space: SpaceGrid
@@ -65,6 +130,16 @@ class GridSolution:
     payoff: FloatArray
     drift: float
     report: MarchReport
+    boundary_tau: FloatArray | None = None
+
+    @property
+    def boundary_times(self) -> FloatArray:
+        """Time to expiry of each entry of ``report.boundary_x``, non-decreasing.
+
+        One per step; with dividends, each ex-date appears twice: the state just after it
+        (from the step that ends there) and then the state just before it.
+        """
+        return self.time.tau if self.boundary_tau is None else self.boundary_tau
 
     @property
     def x_min(self) -> float:
@@ -96,14 +171,267 @@ def solve(
     problem : PDEProblem
         What to solve.
     space, time : SpaceGrid, TimeGrid
-        The grid (``space.frame`` says which frame, see :mod:`stopline.operator`).
+        The grid (``space.frame`` says which frame, see :mod:`stopline.operator`); with
+        dividends, frame "x" and a time grid with a level on every ex-date
+        (:func:`time_grid_for`).
     method : DirectSweep or ProjectedSOR
         Solver of the exercise constraint (also used for European options, where it is a
         plain linear solve).
     """
-    plan = plan_steps(time, space.h, problem.rate, problem.div_yield, problem.vol, space.frame)
+    plan = plan_steps(time, space.h, *problem.coefficients, space.frame)
     v = payoff_on(space, problem.is_put)
-    report = method.march(v, np.exp(space.x), space, plan, problem.is_put, problem.american)
-    v /= plan.scale[-1]
-    payoff = payoff_on(space, problem.is_put, float(plan.shift[-1]))
-    return GridSolution(space, time, v, payoff, plan.drift, report)
+    if not problem.has_events:
+        report = method.march(v, np.exp(space.x), space, plan, problem.is_put, problem.american)
+        v /= plan.scale[-1]
+        payoff = payoff_on(space, problem.is_put, float(plan.shift[-1]))
+        return GridSolution(space, time, v, payoff, plan.drift, report)
+    if space.frame != "x":
+        raise ValueError("cash dividends are solved in frame 'x'")
+    return _solve_with_dividends(problem, space, time, plan, method, v.copy(), v)
+
+
+def _solve_with_dividends(
+    problem: PDEProblem, space: SpaceGrid, time: TimeGrid, plan: StepPlan,
+    method: ExerciseMethod, payoff: FloatArray, v: FloatArray,
+) -> GridSolution:
+    """March segment by segment, applying each dividend at its ex-date level."""
+    tau = time.tau
+    ex_nodes = np.exp(space.x)
+    events: dict[int, float] = {}
+    at_expiry = 0.0
+    for t_d, d in zip(problem.dividend_tau, problem.dividend_amount, strict=True):
+        if t_d <= 1e-12:
+            at_expiry += d
+            continue
+        k = int(np.argmin(np.abs(tau - t_d)))
+        if abs(tau[k] - t_d) > 1e-9 * max(1.0, t_d):
+            raise ValueError(f"no time level on the ex-date (tau={t_d!r}); use time_grid_for")
+        events[k] = events.get(k, 0.0) + d
+    escrowed = problem.escrowed
+    pv_after = _dividends_ahead(problem, plan, to_expiry=False) if escrowed else None
+    if not escrowed:
+        # Far field of the spot model: the discounted forward is lowered by the dividends
+        # ahead, so the European asymptote K e^{-r tau} - S e^{-q tau} gains their value
+        # (kept below K e^{-r tau} for a put, whose stock cannot fall below zero).
+        adj = _dividends_ahead(problem, plan, to_expiry=True)
+        if problem.is_put:
+            adj = np.minimum(adj, np.exp(space.x_min) * plan.df_q)
+        plan = replace(plan, df_r=plan.df_r + adj)
+    work = np.empty_like(v)
+    if at_expiry > 0.0:
+        if escrowed:
+            # the exercise value just before an ex-date on the expiry includes that dividend
+            if problem.american:
+                ex = _shifted_payoff(space, problem.is_put, at_expiry)
+                _kernels.dividend_jump(
+                    v, ex, space.x_min, space.h, 0.0, at_expiry, 1.0, 1.0, problem.is_put, True,
+                    work,
+                )
+                v[:] = work
+        else:
+            _kernels.dividend_jump(
+                v, payoff, space.x_min, space.h, at_expiry, 0.0, 1.0, 1.0, problem.is_put,
+                problem.american, work,
+            )
+            v[:] = work
+    stops = sorted(set(events) | {tau.shape[0] - 1})
+    parts: list[MarchReport] = []
+    # boundary per step, plus one entry at each ex-date for the state just before it
+    b_tau: list[FloatArray] = []
+    b_x: list[FloatArray] = []
+    b_pv: list[FloatArray] = []
+    start = 0
+    for last in stops:
+        if escrowed and problem.american:
+            for k in range(start, last + 1):
+                # the march takes the spot on each node as e^x: here S*/K + PV/K, which sets
+                # the exercise value and the far-field values of the spot itself
+                parts.append(method.march(
+                    v, ex_nodes + pv_after[k], space, plan.part(k, k + 1), problem.is_put, True
+                ))
+                b_x.append(parts[-1].boundary_x)
+        else:
+            parts.append(
+                method.march(v, ex_nodes, space, plan.part(start, last + 1), problem.is_put,
+                             problem.american)
+            )
+            b_x.append(parts[-1].boundary_x)
+        b_tau.append(tau[start:last + 1])
+        b_pv.append(pv_after[start:last + 1] if escrowed else np.zeros(last + 1 - start))
+        d = events.get(last)
+        if d is not None:
+            pv_before = pv_after[last] + d if escrowed else 0.0
+            ex = _shifted_payoff(space, problem.is_put, pv_before) if escrowed else payoff
+            held_from = v.copy()
+            if not escrowed or problem.american:
+                _kernels.dividend_jump(
+                    v, ex, space.x_min, space.h, 0.0 if escrowed else d, pv_before,
+                    plan.df_r[last], plan.df_q[last], problem.is_put, problem.american, work,
+                )
+                v[:] = work
+            if problem.american:
+                held = np.empty_like(v)
+                _kernels.value_after_drop(
+                    held_from, space.x_min, space.h, 0.0 if escrowed else d, plan.df_r[last],
+                    plan.df_q[last], problem.is_put, True, held,
+                )
+                bx = _crossing(held - ex, ex, space, problem.is_put)
+            else:
+                bx = math.nan
+            b_tau.append(np.array([tau[last]]))
+            b_x.append(np.array([bx]))
+            b_pv.append(np.array([pv_before]))
+        start = last + 1
+    bnd = np.concatenate(b_x)
+    if escrowed:
+        # report the critical spot itself: S = S* + PV_t(D)
+        with np.errstate(invalid="ignore"):
+            bnd = np.log(np.exp(bnd) + np.concatenate(b_pv))
+    final_payoff = payoff
+    if escrowed and problem.american:
+        final_payoff = _shifted_payoff(space, problem.is_put, problem.escrow_pv)
+    report = MarchReport(
+        bnd,
+        int(sum(p.iterations for p in parts)),
+        int(max(p.max_iterations for p in parts)),
+        parts[-1].omega,
+    )
+    return GridSolution(space, time, v, final_payoff, 0.0, report, np.concatenate(b_tau))
+
+
+def _crossing(gap: FloatArray, exercise: FloatArray, space: SpaceGrid, is_put: bool) -> float:
+    """Where held minus exercise value changes sign at the in-the-money end, or NaN.
+
+    Just before an ex-date the exercise value crosses the held value at an angle (no smooth
+    pasting there), so the crossing is placed by linear interpolation of the gap.
+    """
+    n = gap.shape[0]
+    idx = range(1, n - 1) if is_put else range(n - 2, 0, -1)
+    prev = -1
+    for j in idx:
+        if not (gap[j] <= 0.0 and exercise[j] > 0.0):
+            if prev < 0:
+                return math.nan
+            g0, g1 = gap[prev], gap[j]
+            frac = g0 / (g0 - g1) if g0 != g1 else 0.0
+            return float(space.x_min + (prev + (j - prev) * frac) * space.h)
+        prev = j
+    return math.nan
+
+
+def _shifted_payoff(space: SpaceGrid, is_put: bool, pv: float) -> FloatArray:
+    """Exercise value / strike on the escrowed grid: spot = ``e^x + pv``."""
+    s = np.exp(space.x) + pv
+    out = 1.0 - s if is_put else s - 1.0
+    np.maximum(out, 0.0, out=out)
+    return out
+
+
+def _dividends_ahead(problem: PDEProblem, plan: StepPlan, *, to_expiry: bool) -> FloatArray:
+    """Per step: the dividends / strike still to come after its end, discounted to it.
+
+    Each dividend is discounted at the rate from its ex-date back to the step's end; with
+    ``to_expiry`` also at the yield from expiry back to the ex-date (the amount by which
+    the dividend lowers the discounted forward ``S e^{-int q}`` of the spot model).
+    """
+    rate, q = problem.coefficients[0], problem.coefficients[1]
+    expiry = problem.expiry
+    out = np.zeros_like(plan.tau)
+    for t_d, d in zip(problem.dividend_tau, problem.dividend_amount, strict=True):
+        ahead = plan.tau > t_d * (1.0 + 1e-12) + 1e-14
+        t_now = np.maximum(expiry - plan.tau[ahead], 0.0)
+        t_ex = expiry - t_d
+        grow = _integral(rate, t_now, t_ex)
+        if to_expiry:
+            grow = grow + _integral(q, np.full_like(t_now, t_ex), expiry)
+        out[ahead] += d * np.exp(-grow)
+    return out
+
+
+def _integral(curve: Curve, t0: FloatArray, t1: float) -> FloatArray:
+    """``int_{t0}^{t1} c(t) dt`` for each entry of ``t0``."""
+    if isinstance(curve, PiecewiseConstant):
+        return curve.cumulative(np.full_like(t0, t1)) - curve.cumulative(t0)
+    return float(curve) * (t1 - t0)
+
+
+def problem_from_market(option: Option, market: Market, expiry: float) -> PDEProblem:
+    """The dimensionless problem for an option in a market, ``expiry`` years from valuation.
+
+    Raises
+    ------
+    InputError
+        Naming ``dividends`` if an ex-date is before the valuation date, or if the present
+        value of the dividends reaches the spot under the escrowed model.
+    """
+    k = option.strike
+    rate, q, vol = market.rate, market.div_yield, market.vol
+    curves = (rate, q, vol) if market.has_term_structure else None
+    rate_avg = rate.average(expiry) if isinstance(rate, PiecewiseConstant) else float(rate)
+    q_avg = q.average(expiry) if isinstance(q, PiecewiseConstant) else float(q)
+    vol_rms = vol.rms(expiry) if isinstance(vol, PiecewiseConstant) else float(vol)
+    sched = dividend_schedule(market.dividends, expiry, market.valuation_date)
+    spot = market.spot
+    pv = 0.0
+    if market.dividend_model == "escrowed" and sched.times.size:
+        pv = present_value(sched.times, sched.amounts, rate)
+        if pv >= spot:
+            raise InputError(
+                "dividends", market.dividends,
+                f"present value {pv:g} of the dividends before expiry reaches the spot {spot:g} "
+                "(escrowed model needs spot > PV(dividends))",
+            )
+        spot = spot - pv
+    return PDEProblem(
+        option.is_put, option.is_american, expiry, rate_avg, q_avg, vol_rms,
+        math.log(spot / k), curves,
+        tuple(float(expiry - t) for t in sched.times),
+        tuple(float(a / k) for a in sched.amounts),
+        market.dividend_model, pv / k, sched.warnings,
+    )
+
+
+def time_grid_for(problem: PDEProblem, levels: int) -> TimeGrid:
+    """Graded time levels for a problem: plain, or segmented at ex-dates and breakpoints.
+
+    Ex-dates end a segment whose successor (earlier in calendar time) restarts the grading
+    and the Rannacher half steps (the exercise value makes a new kink there); term-structure
+    breakpoints end a segment with graded levels but no implicit restart.
+    """
+    expiry = problem.expiry
+    ends: dict[float, bool] = {}
+    ex_dates = problem.dividend_tau if problem.has_events else ()
+    for t_d in ex_dates:
+        if 1e-12 < t_d < expiry * (1.0 - 1e-12):
+            ends[t_d] = True
+    if problem.curves is not None:
+        for c in problem.curves:
+            if isinstance(c, PiecewiseConstant):
+                for b in c.breakpoints(expiry):
+                    tb = expiry - b
+                    if not any(abs(tb - e) <= 1e-12 * expiry for e in ends):
+                        ends[tb] = False
+    if not ends:
+        return build_time_grid(expiry, levels)
+    bounds = tuple(sorted(ends)) + (expiry,)
+    # segment i runs from bounds[i-1] to bounds[i]; it restarts if its start is an ex-date
+    restart = (True,) + tuple(ends[b] for b in bounds[:-1])
+    return build_segmented_time_grid(bounds, restart, split_levels(bounds, levels, restart))
+
+
+def theta_at_valuation(
+    problem: PDEProblem, spot: float, strike: float, value: float, delta: float, gamma: float,
+    exercised: bool,
+) -> float:
+    """Calendar-time theta from the Black-Scholes equation at valuation.
+
+    Uses the instantaneous rate, yield and vol. Under the escrowed model the equation holds
+    for ``S* = S - PV_t(D)``, and ``S*`` moves by ``-r PV`` per year at fixed ``S``.
+    """
+    r, q, v = (c(0.0) if isinstance(c, PiecewiseConstant) else float(c) for c in problem.coefficients)
+    if not problem.escrowed:
+        return theta_from_pde(spot, value, delta, gamma, r, q, v, exercised)
+    pv = problem.escrow_pv * strike
+    core = theta_from_pde(spot - pv, value, delta, gamma, r, q, v, exercised)
+    return 0.0 if exercised else core - r * pv * delta
+

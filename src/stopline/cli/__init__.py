@@ -9,7 +9,9 @@ from __future__ import annotations
 import typer
 
 from . import boundary as _boundary
+from . import crosscheck as _crosscheck
 from . import demo as _demo
+from . import implied as _implied
 from . import price as _price
 
 app = typer.Typer(
@@ -22,6 +24,8 @@ app = typer.Typer(
 app.command("price")(_price.price_cmd)
 app.command("demo")(_demo.demo_cmd)
 app.command("boundary")(_boundary.boundary_cmd)
+app.command("implied")(_implied.implied_cmd)
+app.command("crosscheck")(_crosscheck.crosscheck_cmd)
 
 
 def main() -> None:

@@ -36,6 +36,11 @@ class Method(str, Enum):
     psor = "psor"
 
 
+class DividendModel(str, Enum):
+    spot = "spot"
+    escrowed = "escrowed"
+
+
 @guard
 def price_cmd(
     kind: Kind = typer.Option(..., "--kind", help="put or call."),
@@ -52,6 +57,14 @@ def price_cmd(
     accuracy: Accuracy = typer.Option(Accuracy.standard, "--accuracy", help="fast, standard or fine."),
     method: Method = typer.Option(Method.direct, "--method", help="direct (Brennan-Schwartz) or psor."),
     as_json: bool = typer.Option(False, "--json", help="Print one JSON object instead of a table."),
+    dividend: list[str] = typer.Option(
+        None, "--dividend",
+        help="Cash dividend EX_DATE_OR_YEARS:AMOUNT (e.g. 2027-03-15:0.42); repeat for more.",
+    ),
+    dividend_model: DividendModel = typer.Option(
+        DividendModel.spot, "--dividend-model",
+        help="spot (spot drops on the ex-date) or escrowed (spot less PV of dividends is lognormal).",
+    ),
     plot: Path = typer.Option(
         None, "--plot", help="Also write a figure of value, payoff, delta and gamma across spot (PNG)."
     ),
@@ -59,10 +72,15 @@ def price_cmd(
     """Price one American or European option with its Greeks and error estimate."""
     from .. import Market, Option
     from ..errors import InputError
+    from ..market import parse_dividends
     from ..pricing import price
 
     option = Option(kind.value, strike, parse_expiry(expiry), style=style.value)
-    market = Market(spot, rate, vol, div_yield=div_yield, valuation_date=valuation_date)
+    dividends = [d for text in dividend or () for d in parse_dividends(text)]
+    market = Market(
+        spot, rate, vol, div_yield=div_yield, valuation_date=valuation_date,
+        dividends=dividends, dividend_model=dividend_model.value,
+    )
     if plot is not None and not plot.resolve().parent.is_dir():
         raise InputError("plot", str(plot), "its folder does not exist")
     res = price(option, market, accuracy=accuracy.value, method=method.value)
@@ -95,9 +113,14 @@ def result_record(res) -> dict:  # noqa: ANN001 - Result, imported lazily
         "strike": opt.strike,
         "expiry": opt.expiry if isinstance(opt.expiry, float) else opt.expiry.isoformat(),
         "time_to_expiry": res.time_to_expiry,
-        "rate": mkt.rate,
-        "div_yield": mkt.div_yield,
-        "vol": mkt.vol,
+        "rate": _curve_record(mkt.rate),
+        "div_yield": _curve_record(mkt.div_yield),
+        "vol": _curve_record(mkt.vol),
+        "dividends": [
+            {"ex_date": w.isoformat() if hasattr(w, "isoformat") else w, "amount": a}
+            for w, a in mkt.dividends
+        ],
+        "dividend_model": mkt.dividend_model,
         "valuation_date": None if mkt.valuation_date is None else mkt.valuation_date.isoformat(),
         "price": res.price,
         "delta": res.delta,
@@ -117,6 +140,22 @@ def result_record(res) -> dict:  # noqa: ANN001 - Result, imported lazily
     }
 
 
+def _curve_record(value):  # noqa: ANN001, ANN202 - float or PiecewiseConstant
+    """A flat number as is; a term structure as its times and values."""
+    if hasattr(value, "times"):
+        return {"times": list(value.times), "values": list(value.values)}
+    return value
+
+
+def _curve_text(value) -> str:  # noqa: ANN001 - float or PiecewiseConstant
+    """``4.0000%``, or ``4.0000% to 0.5y, 4.5000% after`` for a term structure."""
+    if not hasattr(value, "times"):
+        return f"{value:.4%}"
+    parts = [f"{v:.4%} to {t:g}y" for t, v in zip(value.times, value.values, strict=True)]
+    return ", ".join(parts[:-1] + [f"{value.values[-1]:.4%} after {value.times[-2]:g}y"]) if len(
+        parts) > 1 else f"{value.values[0]:.4%}"
+
+
 def show_result(res) -> None:  # noqa: ANN001
     """Print a result for a person: what was priced, the answer, how it was computed."""
     console = Console()
@@ -126,9 +165,12 @@ def show_result(res) -> None:  # noqa: ANN001
     inputs.add_column(style="dim")
     inputs.add_column(justify="right")
     inputs.add_row("spot", f"{mkt.spot:g}")
-    inputs.add_row("rate", f"{mkt.rate:.4%}")
-    inputs.add_row("dividend yield", f"{mkt.div_yield:.4%}")
-    inputs.add_row("volatility", f"{mkt.vol:.4%}")
+    inputs.add_row("rate", _curve_text(mkt.rate))
+    inputs.add_row("dividend yield", _curve_text(mkt.div_yield))
+    inputs.add_row("volatility", _curve_text(mkt.vol))
+    for w, a in mkt.dividends:
+        when = w.isoformat() if hasattr(w, "isoformat") else f"{w:g}y"
+        inputs.add_row("cash dividend", f"{a:g} ex {when} ({mkt.dividend_model} model)")
     if mkt.valuation_date is not None:
         inputs.add_row("valuation date", mkt.valuation_date.isoformat())
     console.print(inputs)

@@ -1,0 +1,169 @@
+"""Where a batch of rows is priced: this process, local processes, or a Dask cluster.
+
+Each executor takes ``(index, row)`` pairs, sends them out in chunks (to amortise the cost of
+shipping work to another process) to :func:`stopline.crosscheck.check_rows`, and yields each
+chunk's ``(index, RowCheck)`` pairs as it finishes, in any order. ``close()`` cancels what
+has not started. Dask is imported only when a scheduler address is given.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+import signal
+from collections.abc import Iterator, Mapping, Sequence
+from typing import Protocol
+
+from .errors import InputError
+
+__all__ = ["Executor", "make_executor", "chunked"]
+
+Pairs = Sequence[tuple[int, Mapping[str, object]]]
+
+
+class Executor(Protocol):
+    """What :func:`stopline.crosscheck.run_crosscheck` needs from an executor."""
+
+    description: str
+
+    def map_chunks(self, pairs: Pairs, settings: object) -> Iterator[list]: ...
+
+    def drain(self) -> list[list]:
+        """After an interruption: stop new chunks, return finished ones not yet yielded."""
+        ...
+
+    def close(self) -> None: ...
+
+
+def chunked(pairs: Pairs, n_workers: int) -> list[list[tuple[int, Mapping[str, object]]]]:
+    """Split into chunks: about four per worker (for balance), at most 32 rows each."""
+    if not pairs:
+        return []
+    size = max(1, min(32, math.ceil(len(pairs) / (4 * max(n_workers, 1)))))
+    return [list(pairs[i:i + size]) for i in range(0, len(pairs), size)]
+
+
+class SerialExecutor:
+    """Price in this process, chunk by chunk."""
+
+    description = "1 process"
+
+    def map_chunks(self, pairs: Pairs, settings: object) -> Iterator[list]:
+        from .crosscheck import check_rows
+
+        for chunk in chunked(pairs, 4):
+            yield check_rows(chunk, settings)
+
+    def drain(self) -> list[list]:
+        return []
+
+    def close(self) -> None:
+        pass
+
+
+def _ignore_sigint() -> None:
+    # Ctrl-C is handled by the parent, which saves the checkpoint and stops the pool.
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+
+
+class ProcessExecutor:
+    """Price on ``n`` local processes (concurrent.futures.ProcessPoolExecutor)."""
+
+    def __init__(self, n: int) -> None:
+        from concurrent.futures import ProcessPoolExecutor
+
+        self.n = n
+        self.description = f"{n} processes"
+        self._pool = ProcessPoolExecutor(max_workers=n, initializer=_ignore_sigint)
+
+    def map_chunks(self, pairs: Pairs, settings: object) -> Iterator[list]:
+        from concurrent.futures import as_completed
+
+        from .crosscheck import check_rows
+
+        self._futures = [self._pool.submit(check_rows, c, settings) for c in chunked(pairs, self.n)]
+        self._yielded: set = set()
+        for fut in as_completed(self._futures):
+            self._yielded.add(fut)
+            yield fut.result()
+
+    def drain(self) -> list[list]:
+        # workers ignore SIGINT, so chunks already running finish; queued ones are cancelled
+        self._pool.shutdown(wait=True, cancel_futures=True)
+        return _unyielded(getattr(self, "_futures", []), getattr(self, "_yielded", set()))
+
+    def close(self) -> None:
+        self._pool.shutdown(wait=True, cancel_futures=True)
+
+
+class DaskExecutor:
+    """Price on the workers of a running Dask distributed scheduler."""
+
+    def __init__(self, address: str) -> None:
+        try:
+            from distributed import Client
+        except ImportError:  # pragma: no cover - depends on the installed extras
+            raise InputError(
+                "scheduler", address, "needs Dask distributed: pip install 'stopline[cluster]'"
+            ) from None
+        try:
+            self._client = Client(address, timeout="10s", set_as_default=False)
+        except OSError as exc:
+            raise InputError("scheduler", address, f"cannot be reached ({exc})") from None
+        n = len(self._client.scheduler_info().get("workers", {}))
+        self.n = max(n, 1)
+        self.description = f"Dask cluster at {address} ({n} workers)"
+        self._futures: list = []
+
+    def map_chunks(self, pairs: Pairs, settings: object) -> Iterator[list]:
+        from distributed import as_completed
+
+        from .crosscheck import check_rows
+
+        self._futures = [
+            self._client.submit(check_rows, c, settings, pure=False)
+            for c in chunked(pairs, self.n)
+        ]
+        self._yielded: set = set()
+        with self._client.as_current():
+            finished = as_completed(self._futures)
+        for fut in finished:
+            self._yielded.add(fut.key)
+            yield fut.result()
+
+    def drain(self) -> list[list]:
+        done = [f for f in self._futures if f.status == "finished" and f.key not in self._yielded]
+        return [f.result() for f in done]
+
+    def close(self) -> None:
+        if self._futures:
+            self._client.cancel(self._futures)
+        self._client.close()
+
+
+def _unyielded(futures: list, yielded: set) -> list[list]:
+    out = []
+    for f in futures:
+        if f in yielded or not f.done() or f.cancelled() or f.exception() is not None:
+            continue
+        out.append(f.result())
+    return out
+
+
+def make_executor(*, workers: int | None = None, scheduler: str | None = None) -> Executor:
+    """The executor for the options given: a scheduler address wins over ``workers``.
+
+    Parameters
+    ----------
+    workers : int, optional
+        Local processes; default all cores; 1 means this process.
+    scheduler : str, optional
+        Dask scheduler address, e.g. ``"tcp://127.0.0.1:8786"``.
+    """
+    if scheduler:
+        return DaskExecutor(scheduler)
+    if workers is None:
+        workers = os.cpu_count() or 1
+    if isinstance(workers, bool) or not isinstance(workers, int) or workers < 1:
+        raise InputError("workers", workers, "must be an integer >= 1")
+    return SerialExecutor() if workers == 1 else ProcessExecutor(workers)
