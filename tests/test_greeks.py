@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import itertools
+import math
 
 import numpy as np
 import pytest
@@ -122,3 +123,36 @@ def test_exercise_region_read_off_is_consistent_with_boundary() -> None:
     above = price(Option("put", 100.0, 1.0), Market(star + 0.05, 0.05, 0.2))
     assert below.delta == -1.0 and below.price == pytest.approx(100.0 - (star - 0.05))
     assert above.delta > -1.0 and above.gamma > 0.0 and above.price >= 100.0 - (star + 0.05) - 1e-12
+
+
+def test_escrowed_european_vega_rho_match_shifted_black_scholes() -> None:
+    # Source: escrowed-dividend model: a European option is Black-Scholes (1973) on the spot
+    # less the present value of the dividends, S' = S - D e^{-r t_D}; its rho also moves S'
+    # (dS'/dr = t_D D e^{-r t_D}). Vega and rho come from bumped re-solves here (no identity).
+    s, k, t, r, v, d, td = 100.0, 100.0, 1.0, 0.05, 0.25, 2.0, 0.4
+    mkt = Market(s, r, v, dividends=[(td, d)], dividend_model="escrowed")
+    res = price(Option("put", k, t, style="european"), mkt)
+    shifted = s - d * math.exp(-r * td)
+    ex = bsm("put", shifted, k, t, r, 0.0, v)
+    assert res.vega == pytest.approx(ex["vega"], rel=1e-3)
+    assert res.rho == pytest.approx(ex["rho"] + ex["delta"] * td * d * math.exp(-r * td), rel=1e-3)
+
+
+def test_american_vega_rho_with_curves_and_dividends_match_fine_differences() -> None:
+    # common practice: parallel shifts of the rate and vol curves, central differences of
+    # "fine" prices; cash dividends in the spot model (no closed form).
+    from stopline import PiecewiseConstant
+
+    def mkt(dr: float = 0.0, dv: float = 0.0) -> Market:
+        rate = PiecewiseConstant((0.5, 2.0), (0.03 + dr, 0.05 + dr))
+        vol = PiecewiseConstant((0.25, 2.0), (0.35 + dv, 0.28 + dv))
+        return Market(100.0, rate, vol, dividends=[(0.3, 1.5), (0.8, 1.5)])
+
+    opt = Option("put", 100.0, 1.0)
+    res = price(opt, mkt())
+
+    def fine(**bump: float) -> float:
+        return price(opt, mkt(**bump), accuracy="fine").price
+
+    assert res.rho == pytest.approx((fine(dr=1e-3) - fine(dr=-1e-3)) / 2e-3, rel=2e-3)
+    assert res.vega == pytest.approx((fine(dv=1e-3) - fine(dv=-1e-3)) / 2e-3, rel=2e-3)

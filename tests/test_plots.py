@@ -40,9 +40,8 @@ def test_boundary_figure_in_years_holds_the_result_boundary(tmp_path: Path) -> N
     fig = plot_boundary(res)
     line = _line(fig, "critical spot")
     years = res.time_to_expiry - res.boundary.time_to_expiry
-    order = np.argsort(years)
-    np.testing.assert_array_equal(line.get_xdata(), years[order])
-    np.testing.assert_array_equal(line.get_ydata(), res.boundary.spot[order])
+    np.testing.assert_array_equal(line.get_xdata(), years[::-1])
+    np.testing.assert_array_equal(line.get_ydata(), res.boundary.spot[::-1])
     text = _texts(fig)
     assert "EXERCISE" in text and "HOLD" in text and "American put" in text
     assert "(years)" in fig.axes[0].get_xlabel() and "currency" in fig.axes[0].get_ylabel()
@@ -103,3 +102,21 @@ def test_saved_files_get_the_usual_permissions(tmp_path: Path) -> None:
     mask = os.umask(0)
     os.umask(mask)
     assert out.stat().st_mode & 0o777 == 0o666 & ~mask
+
+
+def test_boundary_figure_with_dividends_leaves_gaps_unshaded(tmp_path: Path) -> None:
+    # common practice: before an ex-dividend date a put may have no exercise region (NaN);
+    # the drawn line keeps those gaps instead of bridging them.
+    from stopline import PiecewiseConstant
+
+    mkt = Market(100.0, PiecewiseConstant((0.5, 2.0), (0.03, 0.05)), 0.3,
+                 valuation_date="2026-12-01", dividends=[("2027-03-15", 1.5), ("2027-09-15", 1.5)])
+    res = price(Option("put", 100.0, "2027-12-17"), mkt)
+    b = res.boundary.spot
+    assert np.isnan(b).any() and np.isfinite(b).any()
+    fig = plot_boundary(res)
+    y = np.asarray(_line(fig, "critical spot").get_ydata())
+    np.testing.assert_array_equal(y, b[::-1])  # NaN where there is no exercise region
+    assert "term structure" in _texts(fig) and "2 cash dividends" in _texts(fig)
+    assert not [ln for ln in fig.axes[0].get_lines() if ln.get_label().startswith("limit")]
+    assert save_figure(fig, tmp_path / "d.png").read_bytes()[:8] == PNG_MAGIC

@@ -39,12 +39,20 @@ def _describe(result_like) -> tuple[str, str]:  # noqa: ANN001 - Result or Value
     exp = opt.expiry.isoformat() if isinstance(opt.expiry, _dt.date) else f"{result_like.time_to_expiry:.4g} y"
     head = f"{opt.style.capitalize()} {opt.kind}, strike {opt.strike:g}, expiry {exp}"
     market = (
-        f"spot {mkt.spot:g}   rate {mkt.rate:.2%}   dividend yield {mkt.div_yield:.2%}   "
-        f"vol {mkt.vol:.1%}"
+        f"spot {mkt.spot:g}   rate {_pct(mkt.rate, 2)}   dividend yield {_pct(mkt.div_yield, 2)}   "
+        f"vol {_pct(mkt.vol, 1)}"
     )
+    divs = getattr(mkt, "dividends", ())
+    if divs:
+        market += f"   {len(divs)} cash dividend{'s' if len(divs) > 1 else ''}"
     if mkt.valuation_date is not None:
         market += f"   valued {mkt.valuation_date.isoformat()}"
     return head, market
+
+
+def _pct(value: object, digits: int) -> str:
+    """A flat rate or vol as a percentage; a term structure by name."""
+    return f"{value:.{digits}%}" if isinstance(value, (int, float)) else "term structure"
 
 
 def _caution(fig: Figure, extra: str = "") -> None:
@@ -87,8 +95,9 @@ def plot_boundary(result: Result) -> Figure:
         x_end = x0 + t_exp * 365.0
     else:
         x0, xs, x_end = 0.0, years, t_exp
-    order = np.argsort(xs)
-    xs, spot = xs[order], b.spot[order]
+    # time to expiry rises along the arrays; from valuation to expiry is the reverse order
+    # (kept as is, so an ex-date's two states stay in sequence)
+    xs, spot = xs[::-1], b.spot[::-1]
 
     fig = Figure(figsize=(8.0, 5.2), layout="constrained")
     ax = fig.add_subplot()
@@ -107,10 +116,12 @@ def plot_boundary(result: Result) -> Figure:
 
     if finite.any():
         xf, yf = xs[finite], spot[finite]
-        ex_lo, ex_hi = (y_lo, yf) if opt.is_put else (yf, y_hi)
-        ho_lo, ho_hi = (yf, y_hi) if opt.is_put else (y_lo, yf)
-        ax.fill_between(xf, ex_lo, ex_hi, color=_EXERCISE, alpha=0.22, lw=0, label="exercise region")
-        ax.fill_between(xf, ho_lo, ho_hi, color=_HOLD, alpha=0.22, lw=0, label="hold region")
+        # hold everywhere but the exercise region; where there is no exercise region (NaN,
+        # e.g. just before an ex-dividend date) the whole column is hold
+        ax.axhspan(y_lo, y_hi, color=_HOLD, alpha=0.22, lw=0, label="hold region")
+        ex_lo, ex_hi = (np.full_like(spot, y_lo), spot) if opt.is_put else (spot, np.full_like(spot, y_hi))
+        ax.fill_between(xs, ex_lo, ex_hi, where=finite, interpolate=False, color=_EXERCISE,
+                        alpha=0.22, lw=0, label="exercise region")
         ax.plot(xs, spot, color=_INK, lw=2.0, label="critical spot")
         mid = xf[len(xf) // 2]
         y_mid = yf[len(yf) // 2]
@@ -121,10 +132,12 @@ def plot_boundary(result: Result) -> Figure:
                 "HOLD\n(worth more kept alive)", ha="center", va="center",
                 fontsize=10, color="#2f5d84", weight="bold")
         q, r = mkt.div_yield, mkt.rate
-        if opt.is_put:
-            limit = k * min(1.0, r / q) if q > 0 else k
-        else:
-            limit = k * max(1.0, r / q) if q > 0 else np.inf
+        limit = np.inf  # Kim's limit: flat rate and yield, no cash dividend at expiry
+        if isinstance(q, (int, float)) and isinstance(r, (int, float)) and not getattr(mkt, "dividends", ()):
+            if opt.is_put:
+                limit = k * min(1.0, r / q) if q > 0 else k
+            elif q > 0:
+                limit = k * max(1.0, r / q)
         if np.isfinite(limit) and y_lo <= limit <= y_hi:
             ax.plot([x_end], [limit], marker="o", ms=6, mfc="white", mec=_INK, ls="none",
                     label="limit at expiry (Kim 1990)", clip_on=False)
