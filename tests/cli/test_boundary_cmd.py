@@ -78,3 +78,16 @@ def test_price_shows_vega_and_rho_and_writes_plot(runner: CliRunner, tmp_path: P
     assert rec["plot"] == str(fig) and fig.read_bytes()[:8] == PNG_MAGIC
     table = runner.invoke(app, ["price", *CONTRACT, "--expiry", "1"])
     assert table.exit_code == 0 and "vega" in table.output and "rho" in table.output
+
+
+def test_boundary_takes_cash_dividends(runner: CliRunner, tmp_path: Path) -> None:
+    # common practice: the same dividend flags as `stopline price`; rows match the library.
+    png, table = tmp_path / "d.png", tmp_path / "d.csv"
+    r = runner.invoke(app, ["boundary", *CONTRACT, "--expiry", "1", "--dividend", "0.3:1.5",
+                            "--dividend", "0.8:1.5", "--out", str(png), "--csv", str(table)])
+    assert r.exit_code == 0, r.output
+    rows = list(csv.DictReader(table.open()))
+    res = price(Option("put", 100.0, 1.0), Market(100.0, 0.05, 0.3, dividends=[(0.3, 1.5), (0.8, 1.5)]))
+    got = np.array([float(row["critical_spot"]) if row["critical_spot"] else np.nan for row in rows])
+    np.testing.assert_allclose(got, res.boundary.spot[::-1], rtol=1e-9)
+    assert png.read_bytes()[:8] == PNG_MAGIC

@@ -7,7 +7,7 @@ from pathlib import Path
 import typer
 
 from ._common import CAUTION, guard, parse_expiry
-from .price import Accuracy, Kind, Method, Style
+from .price import Accuracy, DividendModel, Kind, Method, Style
 
 __all__ = ["boundary_cmd"]
 
@@ -27,6 +27,14 @@ def boundary_cmd(
     ),
     accuracy: Accuracy = typer.Option(Accuracy.standard, "--accuracy", help="fast, standard or fine."),
     method: Method = typer.Option(Method.direct, "--method", help="direct (Brennan-Schwartz) or psor."),
+    dividend: list[str] = typer.Option(
+        None, "--dividend",
+        help="Cash dividend EX_DATE_OR_YEARS:AMOUNT (e.g. 2027-03-15:0.42); repeat for more.",
+    ),
+    dividend_model: DividendModel = typer.Option(
+        DividendModel.spot, "--dividend-model",
+        help="spot (spot drops on the ex-date) or escrowed (spot less PV of dividends is lognormal).",
+    ),
     out: Path = typer.Option(Path("boundary.png"), "--out", help="Figure to write (PNG)."),
     csv_path: Path = typer.Option(None, "--csv", help="Also write the boundary points as CSV."),
 ) -> None:
@@ -34,6 +42,7 @@ def boundary_cmd(
     from .. import Market, Option
     from ..boundary import write_boundary_csv
     from ..errors import InputError
+    from ..market import parse_dividends
     from ..plots import plot_boundary, save_figure
     from ..pricing import price
 
@@ -43,7 +52,11 @@ def boundary_cmd(
         if path is not None and not path.resolve().parent.is_dir():
             raise InputError(field, str(path), "its folder does not exist")
     option = Option(kind.value, strike, parse_expiry(expiry), style=style.value)
-    market = Market(spot, rate, vol, div_yield=div_yield, valuation_date=valuation_date)
+    dividends = [d for text in dividend or () for d in parse_dividends(text)]
+    market = Market(
+        spot, rate, vol, div_yield=div_yield, valuation_date=valuation_date,
+        dividends=dividends, dividend_model=dividend_model.value,
+    )
     res = price(option, market, accuracy=accuracy.value, method=method.value)
     if res.boundary.spot.size == 0:
         raise InputError("expiry", expiry, "is the valuation date: there is no boundary to draw")
@@ -56,6 +69,8 @@ def boundary_cmd(
     side = "at or below" if option.is_put else "at or above"
     if star == star:  # not NaN
         typer.echo(f"critical spot today: {star:.6g} (exercise {side} it); spot {spot:g}")
+    elif (res.boundary.spot == res.boundary.spot).any():
+        typer.echo("no early exercise today; the figure shows when it would be optimal")
     else:
         typer.echo("early exercise is not optimal at any time for this contract")
     typer.echo(CAUTION)
