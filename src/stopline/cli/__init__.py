@@ -13,6 +13,7 @@ from . import crosscheck as _crosscheck
 from . import demo as _demo
 from . import implied as _implied
 from . import price as _price
+from . import validate as _validate
 
 app = typer.Typer(
     name="stopline",
@@ -26,6 +27,7 @@ app.command("demo")(_demo.demo_cmd)
 app.command("boundary")(_boundary.boundary_cmd)
 app.command("implied")(_implied.implied_cmd)
 app.command("crosscheck")(_crosscheck.crosscheck_cmd)
+app.command("validate")(_validate.validate_cmd)
 
 
 def main() -> None:
