@@ -109,10 +109,10 @@ def test_locate_boundary_matches_twin() -> None:
     v = payoff + np.where(x > xstar, 3.0 * (x - xstar) ** 2, 0.0)
     got = _kernels.locate_boundary(v, payoff, x0, h, True)
     assert got == pytest.approx(xstar, abs=1e-12)
-    # twin: the same rule written with NumPy
+    # twin: the same rule written with NumPy (line through the second and third held nodes)
     j = int(np.argmax(v[1:] > payoff[1:])) + 1
-    s1, s2 = np.sqrt(v[j] - payoff[j]), np.sqrt(v[j + 1] - payoff[j + 1])
-    assert got == pytest.approx(x[j] - s1 / (s2 - s1) * h, abs=1e-14)
+    s1, s2 = np.sqrt(v[j + 1] - payoff[j + 1]), np.sqrt(v[j + 2] - payoff[j + 2])
+    assert got == pytest.approx(x[j + 1] - s1 / (s2 - s1) * h, abs=1e-14)
     # no exercise region
     assert math.isnan(_kernels.locate_boundary(payoff + 1.0, payoff, x0, h, True))
 
@@ -141,50 +141,6 @@ def test_thomas_floors_solve_the_system(rng: np.random.Generator, n: int) -> Non
         np.testing.assert_allclose(out, exact, rtol=1e-12, atol=1e-12)
 
 
-def _twin_read(values, payoff, x_min, h, x_spot, american):  # noqa: ANN001, ANN202
-    """Plain-Python cubic read-off (Lagrange on the four nearest nodes), with the exercise test."""
-    n = values.size
-    j = int(math.floor((x_spot - x_min) / h))
-    j0 = min(max(j - 1, 0), n - 4)
-    t = (x_spot - x_min) / h - j0
-    if american:
-        is_put = payoff[0] > payoff[-1]
-        ex = all(values[i] <= payoff[i] and payoff[i] > 0 for i in range(j0, j0 + 4))
-        xb = _kernels.locate_boundary.py_func(values, payoff, x_min, h, is_put)
-        if ex or (not math.isnan(xb) and (x_spot <= xb if is_put else x_spot >= xb)):
-            s = math.exp(x_spot)
-            return (max(1 - s, 0.0), -1.0, 0.0, True) if is_put else (max(s - 1, 0.0), 1.0, 0.0, True)
-    nodes = np.arange(4.0)
-    y = values[j0 : j0 + 4]
-    coef = np.polyfit(nodes, y, 3)
-    v = np.polyval(coef, t)
-    vt = np.polyval(np.polyder(coef), t)
-    vtt = np.polyval(np.polyder(coef, 2), t)
-    return v, vt / h, vtt / (h * h), False
-
-
-@pytest.mark.parametrize("is_put", [True, False])
-def test_read_cubic_matches_its_twin(rng: np.random.Generator, is_put: bool) -> None:
-    # an American-like profile: the payoff on the exercise side of x*, payoff plus a smooth
-    # gap growing like (x - x*)^2 beyond it (smooth pasting)
-    h = 0.01
-    x = -1.0 + h * np.arange(201)
-    payoff = np.maximum(1.0 - np.exp(x), 0.0) if is_put else np.maximum(np.exp(x) - 1.0, 0.0)
-    xb = -0.3237 if is_put else 0.4121
-    d = (x - xb) if is_put else (xb - x)
-    gap = np.where(d > 0, 0.5 * d**2 + 0.1 * d**3, 0.0)
-    values = payoff + gap
-    n_ex = 0
-    for xs in rng.uniform(x[2], x[-3], 300):
-        for american in (True, False):
-            got = _kernels.read_cubic(values, payoff, x[0], h, xs, american)
-            want = _twin_read(values, payoff, x[0], h, xs, american)
-            assert got[3] == want[3]
-            np.testing.assert_allclose(got[:3], want[:3], rtol=1e-9, atol=1e-9)
-            n_ex += got[3]
-    assert n_ex > 0  # the exercise branch was taken
-
-
 @pytest.mark.parametrize("step", [1, -1])
 def test_split_substitution_equals_the_one_line_projection(
     rng: np.random.Generator, step: int
@@ -205,3 +161,50 @@ def test_split_substitution_equals_the_one_line_projection(
             want[j] = y
         _kernels._substitute_projected(v, rhs, aw, payoff, start, stop, step)
         np.testing.assert_allclose(v, want, rtol=1e-15, atol=1e-15)  # fused multiply-add: 1 ulp
+
+
+def _locate_twin(v: np.ndarray, payoff: np.ndarray, x0: float, h: float, is_put: bool) -> float:
+    """Plain-NumPy twin of _kernels.locate_boundary (written from its docstring)."""
+    n = v.shape[0]
+    exercised = (payoff > 0.0) & (v <= payoff)
+    inner = np.arange(1, n - 1)
+    if is_put:
+        run = inner[np.cumprod(exercised[1 : n - 1]).astype(bool)]
+        j = 1 + run.size
+        if j == 1 or j >= n - 2:
+            return math.nan
+        held = [j + 1, j + 2] if j + 3 <= n - 1 else [j, j + 1]
+        sgn = 1.0
+    else:
+        run = inner[::-1][np.cumprod(exercised[1 : n - 1][::-1]).astype(bool)]
+        j = n - 2 - run.size
+        if j == n - 2 or j <= 1:
+            return math.nan
+        held = [j - 1, j - 2] if j - 3 >= 0 else [j, j - 1]
+        sgn = -1.0
+    sa, sb = np.sqrt(np.maximum(v[held] - payoff[held], 0.0))
+    off = abs(held[0] - j)
+    t = off - sa / (sb - sa) if sb > sa else -0.5
+    t = min(max(t, -3.0), 0.0)
+    x = x0 + j * h + sgn * t * h
+    if is_put:  # not beyond the strike, found from the last exercised node's payoff
+        return min(x, x0 + (j - 1) * h - math.log(1.0 - payoff[j - 1]))
+    return max(x, x0 + (j + 1) * h - math.log(1.0 + payoff[j + 1]))
+
+
+@pytest.mark.parametrize("is_put", [True, False])
+def test_locate_boundary_kernel_matches_numpy_twin(is_put: bool, rng: np.random.Generator) -> None:
+    # common practice: each numba kernel agrees with a plain-NumPy twin; here on gaps
+    # c (x - x*)^2 plus noise, whose vertex the kernel should find to a small fraction of h.
+    h, n = 0.01, 201
+    x0 = -1.0
+    x = x0 + h * np.arange(n)
+    for _ in range(50):
+        star = rng.uniform(-0.6, -0.1) if is_put else rng.uniform(0.1, 0.6)
+        payoff = np.maximum(1.0 - np.exp(x), 0.0) if is_put else np.maximum(np.exp(x) - 1.0, 0.0)
+        side = (x > star) if is_put else (x < star)
+        gap = np.where(side, rng.uniform(0.5, 2.0) * (x - star) ** 2, 0.0)
+        v = payoff + gap * (1.0 + rng.normal(0.0, 1e-3, n))
+        ours = _kernels.locate_boundary(v, payoff, x0, h, is_put)
+        assert ours == pytest.approx(_locate_twin(v, payoff, x0, h, is_put), abs=1e-14)
+        assert abs(ours - star) < 0.01 * h

@@ -10,6 +10,7 @@ from .exercise import METHODS, DirectSweep, ProjectedSOR
 from .implied import ImpliedVolError, ImpliedVolResult, implied_vol, implied_vol_detail
 from .market import Market, parse_dividends
 from .pricing import PRESETS, ExerciseBoundary, GridSpec, Result, SolveStats, price
+from .profile import ValueProfile, value_profile
 from .termstructure import PiecewiseConstant
 
 __all__ = [
@@ -34,6 +35,8 @@ __all__ = [
     "StoplineError",
     "InputError",
     "ConvergenceError",
+    "value_profile",
+    "ValueProfile",
     "implied_vol",
     "implied_vol_detail",
     "ImpliedVolResult",

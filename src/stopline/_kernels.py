@@ -32,7 +32,6 @@ __all__ = [
     "march_direct",
     "march_psor",
     "locate_boundary",
-    "read_cubic",
     "thomas_repeat",
     "thomas_repeat_fixed_point",
     "dividend_jump",
@@ -90,9 +89,15 @@ def locate_boundary(v, payoff, x0, h, is_put):
 
     The exercise region is the run of interior nodes, starting at the grid end where the
     option is deep in the money, on which ``v == payoff`` and the payoff is positive. Beyond
-    its last node the gap ``g = v - payoff`` grows like ``c (x - x*)^2`` (smooth pasting), so
-    ``sqrt(g)`` is close to linear in ``x``; the root of the line through the first two
-    positive gaps places ``x*`` below the grid spacing.
+    it the gap ``g = v - payoff`` grows like ``c (x - x*)^2`` (smooth pasting), so ``sqrt(g)``
+    is close to linear in ``x`` and the root of a line through two of its values places
+    ``x*`` below the grid spacing. The first held node's gap is distorted by the projection
+    onto the payoff (its neighbour was clamped), so the line goes through the second and
+    third held nodes; the first two are used if the grid leaves no third. The discrete
+    problem may exercise a node or two on which the exact solution is (barely) held, so
+    ``x*`` may lie up to three spacings inside the run of exercised nodes; it is kept on the
+    side of the strike where the payoff is positive (the strike's position is read off the
+    payoff of the last exercised node, so any frame of the nodes will do).
     """
     n = v.shape[0]
     if is_put:
@@ -101,9 +106,6 @@ def locate_boundary(v, payoff, x0, h, is_put):
             j += 1
         if j == 1 or j >= n - 2:
             return math.nan
-        g1 = v[j] - payoff[j]
-        g2 = v[j + 1] - payoff[j + 1]
-        xa = x0 + j * h
         step = h
     else:
         j = n - 2
@@ -111,22 +113,30 @@ def locate_boundary(v, payoff, x0, h, is_put):
             j -= 1
         if j == n - 2 or j <= 1:
             return math.nan
-        g1 = v[j] - payoff[j]
-        g2 = v[j - 1] - payoff[j - 1]
-        xa = x0 + j * h
         step = -h
-    if g1 < 0.0:
-        g1 = 0.0
-    if g2 < 0.0:
-        g2 = 0.0
-    s1 = math.sqrt(g1)
-    s2 = math.sqrt(g2)
-    if s2 <= s1:
-        return xa - step
-    frac = s1 / (s2 - s1)
-    if frac > 1.0:
-        frac = 1.0
-    return xa - frac * step
+    i = 1 if (j + 3 <= n - 1 if is_put else j - 3 >= 0) else 0
+    sgn = 1 if is_put else -1
+    ga = v[j + sgn * i] - payoff[j + sgn * i]
+    gb = v[j + sgn * (i + 1)] - payoff[j + sgn * (i + 1)]
+    sa = math.sqrt(ga) if ga > 0.0 else 0.0
+    sb = math.sqrt(gb) if gb > 0.0 else 0.0
+    # position in units of step from the first held node j
+    t = i - sa / (sb - sa) if sb > sa else -0.5
+    if t < -3.0:
+        t = -3.0
+    elif t > 0.0:
+        t = 0.0
+    x = x0 + j * h + t * step
+    # the strike's position, from the payoff of the last exercised node (any frame)
+    if is_put:
+        x_k = x0 + (j - 1) * h - math.log(1.0 - payoff[j - 1])
+        if x > x_k:
+            x = x_k
+    else:
+        x_k = x0 + (j + 1) * h - math.log(1.0 + payoff[j + 1])
+        if x < x_k:
+            x = x_k
+    return x
 
 
 @njit(cache=True, fastmath={"contract"})
@@ -627,58 +637,3 @@ def thomas_repeat_fixed_point(rhs0, a, b, c, n_solves, out):
         for i in range(n - 2, -1, -1):
             y = r[i] - c * w[i] * y
             out[i] = y
-
-
-@njit(cache=True)
-def read_cubic(values, payoff, x0, h, x_spot, american):
-    """Value and its x-derivatives at ``x_spot`` from the cubic through the four nearest nodes.
-
-    Returns ``(v, v_x, v_xx, exercised)``. When ``american`` and the spot is in the exercise
-    region (all four nodes exercised, or the spot past the boundary located by
-    :func:`locate_boundary`), returns ``(payoff at the spot, -1 or +1, 0, True)``: the
-    intrinsic value and the money delta of a put or a call.
-    """
-    n = values.shape[0]
-    u = (x_spot - x0) / h
-    j = int(math.floor(u))
-    j0 = min(max(j - 1, 0), n - 4)
-    t = u - j0  # position in units of h from node j0, in [0, 3]
-    if american:
-        is_put = payoff[0] > payoff[n - 1]
-        ex = True
-        for i in range(j0, j0 + 4):
-            if not (values[i] <= payoff[i] and payoff[i] > 0.0):
-                ex = False
-        if not ex:
-            xb = locate_boundary(values, payoff, x0, h, is_put)
-            if not math.isnan(xb):
-                ex = x_spot <= xb if is_put else x_spot >= xb
-        if ex:
-            s = math.exp(x_spot)
-            if is_put:
-                return max(1.0 - s, 0.0), -1.0, 0.0, True
-            return max(s - 1.0, 0.0), 1.0, 0.0, True
-    v0 = values[j0]
-    v1 = values[j0 + 1]
-    v2 = values[j0 + 2]
-    v3 = values[j0 + 3]
-    # Lagrange basis on nodes 0, 1, 2, 3 at position t, and its derivatives in t
-    a0 = t - 1.0
-    a1 = t - 2.0
-    a2 = t - 3.0
-    v = (-a0 * a1 * a2 / 6.0) * v0 + (t * a1 * a2 / 2.0) * v1 + (-t * a0 * a2 / 2.0) * v2 + (
-        t * a0 * a1 / 6.0
-    ) * v3
-    vt = (
-        (-(a1 * a2 + a0 * a2 + a0 * a1) / 6.0) * v0
-        + ((a1 * a2 + t * a2 + t * a1) / 2.0) * v1
-        + (-(a0 * a2 + t * a2 + t * a0) / 2.0) * v2
-        + ((a0 * a1 + t * a1 + t * a0) / 6.0) * v3
-    )
-    vtt = (
-        (-(a0 + a1 + a2) / 3.0) * v0
-        + (a1 + a2 + t) * v1
-        + (-(a0 + a2 + t)) * v2
-        + ((a0 + a1 + t) / 3.0) * v3
-    )
-    return v, vt / h, vtt / (h * h), False

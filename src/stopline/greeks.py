@@ -1,26 +1,78 @@
-"""Reading the price, delta and gamma at the spot off a grid solution, and theta from the PDE.
+"""Greeks from grid solutions: read-off at the spot, theta from the PDE, vega and rho by bumps.
 
-The grid carries the value on nodes in ``x = ln(S / K)``. At the spot ``x_s`` the four nearest
-nodes define a cubic (Lagrange) interpolant; its value, first and second derivative give
-``v``, ``v_x`` and ``v_xx`` (errors O(h^4), O(h^3), O(h^2), below the scheme's O(h^2)), and
+How each number in :class:`~stopline.pricing.Result` is computed:
 
-    price = K v,   delta = v_x / e^x,   gamma = (v_xx - v_x) / (K e^{2x}).
+- **price, delta, gamma.** The grid carries the value on nodes in ``x = ln(S / K)``. The six
+  nodes nearest the spot define a quintic (Lagrange) interpolant; its value, first and second
+  derivative at the spot, by Fornberg's (1988) weights, give ``v``, ``v_x`` and ``v_xx`` with
+  interpolation errors O(h^6), O(h^5), O(h^4), far below the scheme's O(h^2), so the
+  Richardson step of two grids cancels the scheme's error cleanly (a cubic's O(h^2) error in
+  ``v_xx`` depends on where the spot falls between nodes and does not cancel). Then
+  ``price = K v``, ``delta = v_x / e^x``, ``gamma = (v_xx - v_x) / (K e^{2x})``. Where the
+  spot lies in the exercise region (beyond the located critical spot) the value is the payoff,
+  delta is -1 or +1 and gamma 0; near the boundary the stencil is moved onto held nodes so that
+  it does not straddle the kink in the second derivative.
+- **theta** (calendar time) comes from the equation itself at the valuation level: where the
+  option is held, ``V_t = -(1/2 s^2 S^2 gamma + (r - q) S delta - r V)``; where it is
+  exercised, zero. It is as accurate as delta and gamma; a difference quotient over the last
+  (longest, on a graded grid) time step would be first order.
+- **vega, rho** (American, or with dividends or term structures) by central differences
+  ``(V(p + dp) - V(p - dp)) / (2 dp)`` of prices re-solved with the market's volatility or
+  rate shifted in parallel (:data:`VOL_BUMP`, :data:`RATE_BUMP`; a curve moves as a whole,
+  see :func:`bumped_market`), on grids built once from the unbumped inputs and reused, so
+  that the bump moves no node. See :func:`central_difference`.
+- **vega, rho** (European, flat inputs) from the solve itself: differentiating
+  ``V = e^{-rT} E[payoff(S_T)]`` gives ``vega = vol T S^2 gamma`` and
+  ``rho = T (S delta - V)`` exactly (:func:`european_vega_rho`); no re-solve is needed.
+  Neither identity holds with early exercise, nor with discrete dividends or term
+  structures.
 
-Theta (calendar time) comes from the equation itself at the valuation level: where the option
-is held, ``V_t = -(1/2 s^2 S^2 gamma + (r - q) S delta - r V)``; where it is exercised, the
-value is the payoff and theta is zero. This is second order, like delta and gamma; a
-difference quotient over the last (longest, on a graded grid) time step would be first order.
+References
+----------
+Fornberg, B. (1988), Generation of finite difference formulas on arbitrarily spaced grids,
+Mathematics of Computation 51(184).
+Richardson, L. F. (1911), The approximate arithmetical solution by finite differences of
+physical problems, Phil. Trans. R. Soc. A 210.
 """
 
 from __future__ import annotations
 
+import copy
 import math
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
-from . import _kernels
+import numpy as np
+
 from ._types import FloatArray
 
-__all__ = ["GridReadout", "read_at_spot", "theta_from_pde"]
+if TYPE_CHECKING:
+    from .market import Market
+
+__all__ = [
+    "GridReadout",
+    "read_at_spot",
+    "theta_from_pde",
+    "fd_weights",
+    "central_difference",
+    "VOL_BUMP",
+    "RATE_BUMP",
+    "STENCIL",
+    "european_vega_rho",
+    "bumped_market",
+]
+
+#: Nodes in the read-off stencil (a quintic).
+STENCIL = 6
+#: Relative volatility bump for vega: ``dv = VOL_BUMP * vol``. The truncation error of the
+#: central difference, ``dv^2 / 6 * d3V/dvol3``, stays below 1.5e-4 of vega over typical
+#: contracts; a smaller bump divides the grid's non-smooth dependence on the inputs (nodes
+#: entering or leaving the exercise region) by a smaller number, and American vegas at
+#: ``standard`` lose accuracy (measured: 1.2e-3 relative with a 0.1 % bump, 4e-4 with 1 %).
+VOL_BUMP = 1e-2
+#: Absolute rate bump for rho (truncation error about ``(dr T)^2 / 6`` relative: 2e-7 at one
+#: year, 4e-4 at fifty).
+RATE_BUMP = 1e-3
 
 
 @dataclass(frozen=True)
@@ -32,7 +84,7 @@ class GridReadout:
     value, delta, gamma : float
         Price, dV/dS, d2V/dS2.
     exercised : bool
-        True if the spot lies inside the exercise region (all four stencil nodes exercised).
+        True if the spot lies in the exercise region.
     """
 
     value: float
@@ -41,11 +93,57 @@ class GridReadout:
     exercised: bool
 
 
+def fd_weights(z: float, x: FloatArray, m: int) -> FloatArray:
+    """Weights of derivatives 0..m at ``z`` of the polynomial through nodes ``x``.
+
+    Parameters
+    ----------
+    z : float
+        Where to evaluate.
+    x : ndarray, shape (p,)
+        Distinct nodes.
+    m : int
+        Highest derivative.
+
+    Returns
+    -------
+    ndarray, shape (m + 1, p)
+        Row ``k`` dotted with the nodal values gives the ``k``-th derivative at ``z``.
+
+    References
+    ----------
+    Fornberg, B. (1988), Mathematics of Computation 51(184), 699-706.
+    """
+    p = x.shape[0]
+    c = np.zeros((m + 1, p))
+    c1 = 1.0
+    c4 = x[0] - z
+    c[0, 0] = 1.0
+    for i in range(1, p):
+        mn = min(i, m)
+        c2 = 1.0
+        c5 = c4
+        c4 = x[i] - z
+        for j in range(i):
+            c3 = x[i] - x[j]
+            c2 *= c3
+            if j == i - 1:
+                for k in range(mn, 0, -1):
+                    c[k, i] = c1 * (k * c[k - 1, i - 1] - c5 * c[k, i - 1]) / c2
+                c[0, i] = -c1 * c5 * c[0, i - 1] / c2
+            for k in range(mn, 0, -1):
+                c[k, j] = (c4 * c[k, j] - k * c[k - 1, j]) / c3
+            c[0, j] = c4 * c[0, j] / c3
+        c1 = c2
+    return c
+
+
 def read_at_spot(
     values: FloatArray, payoff: FloatArray, x_min: float, h: float, x_spot: float,
-    strike: float, american: bool,
+    strike: float, american: bool, x_boundary: float = math.nan,
+    is_put: bool | None = None,
 ) -> GridReadout:
-    """Cubic read-off of value, delta and gamma at ``x_spot``.
+    """Quintic read-off of value, delta and gamma at ``x_spot``.
 
     Parameters
     ----------
@@ -58,17 +156,87 @@ def read_at_spot(
     strike : float
         Scales the dimensionless values back to money.
     american : bool
-        Whether the exercise region is checked for: a spot in it (all four nodes exercised,
-        or past the boundary located below the grid spacing, see
-        :func:`stopline._kernels.locate_boundary`) reads the payoff, since the value is only
-        C1 across the boundary and a cubic through nodes on both sides misses it by O(h^2).
+        Whether the exercise region is checked for.
+    x_boundary : float, optional
+        Located critical log-moneyness at valuation (NaN if none). Without it, the spot counts
+        as exercised when every stencil node is.
+    is_put : bool, optional
+        The option's kind; when not given it is inferred from where the payoff is positive,
+        which fails on a grid that lies wholly in the money.
     """
-    v, v_x, v_xx, exercised = _kernels.read_cubic(values, payoff, x_min, h, x_spot, american)
-    if exercised:
-        # intrinsic value; v_x carries the money delta (-1 put, +1 call)
-        return GridReadout(strike * v, v_x, 0.0, True)
+    n = values.shape[0]
+    p = min(STENCIL, n)
+    j = int(math.floor((x_spot - x_min) / h))
+    j0 = min(max(j - p // 2 + 1, 0), n - p)
+    if american:
+        # a put's payoff is positive at the low end
+        put_side = bool(is_put) if is_put is not None else payoff[0] > 0.0
+        e = math.exp(x_spot)
+        intrinsic = max(1.0 - e, 0.0) if put_side else max(e - 1.0, 0.0)
+        if math.isfinite(x_boundary):
+            inside = x_spot <= x_boundary if put_side else x_spot >= x_boundary
+        else:
+            inside = all(values[i] <= payoff[i] and payoff[i] > 0 for i in range(j0, j0 + p))
+        if inside and intrinsic > 0.0:
+            return GridReadout(strike * intrinsic, -1.0 if put_side else 1.0, 0.0, True)
+        held = (values > payoff) | (payoff <= 0.0)
+        if not held.any():
+            pass  # every node exercised: the stencil stays around the spot
+        elif put_side:
+            first = int(np.argmax(held))  # first held node from the low end
+            if first + p <= n:
+                j0 = max(j0, first)
+        else:
+            last = n - 1 - int(np.argmax(held[::-1]))  # last held node from the high end
+            if last - p + 1 >= 0:
+                j0 = min(j0, last - p + 1)
+    w = fd_weights((x_spot - x_min) / h - j0, np.arange(p, dtype=np.float64), 2)
+    seg = values[j0 : j0 + p]
+    v = float(w[0] @ seg)
+    vx = float(w[1] @ seg) / h
+    vxx = float(w[2] @ seg) / (h * h)
     e = math.exp(x_spot)
-    return GridReadout(strike * v, v_x / e, (v_xx - v_x) / (strike * e * e), False)
+    return GridReadout(strike * v, vx / e, (vxx - vx) / (strike * e * e), False)
+
+
+def european_vega_rho(
+    spot: float, value: float, delta: float, gamma: float, vol: float, expiry: float
+) -> tuple[float, float]:
+    """Vega and rho of a European option with flat inputs, from its value, delta and gamma.
+
+    ``vega = vol T S^2 gamma`` and ``rho = T (S delta - V)``: identities of the lognormal
+    model with constant rate, yield and volatility, found by differentiating the discounted
+    expected payoff ``e^{-rT} E[payoff(S e^{(r - q - vol^2/2) T + vol W_T})]`` under the
+    parameter (for vega, with an integration by parts in ``W_T``).
+    """
+    return vol * expiry * spot * spot * gamma, expiry * (spot * delta - value)
+
+
+def bumped_market(market: Market, *, vol: float = 0.0, rate: float = 0.0) -> Market:
+    """A copy of ``market`` with its vol and rate shifted in parallel by ``vol`` and ``rate``.
+
+    Flat numbers and term structures (:class:`~stopline.PiecewiseConstant`, which adds a
+    number to every piece) shift alike. The copy skips the input range checks on purpose: a
+    bump may step just outside the accepted range (vol 5 + 1 %), and the market itself was
+    checked.
+    """
+    out = copy.copy(market)
+    if vol:
+        object.__setattr__(out, "vol", market.vol + vol)
+    if rate:
+        object.__setattr__(out, "rate", market.rate + rate)
+    return out
+
+
+def central_difference(up: float, down: float, bump: float) -> float:
+    """``(up - down) / (2 bump)``: a derivative with O(bump^2) truncation error.
+
+    Vega and rho are central differences of prices re-solved with the input bumped up and
+    down by ``bump`` on the unbumped problem's two grids. Each bumped price is Richardson
+    extrapolated from that pair like the price, so the difference of extrapolated prices is
+    the extrapolation of the differences.
+    """
+    return (up - down) / (2.0 * bump)
 
 
 def theta_from_pde(
@@ -79,3 +247,4 @@ def theta_from_pde(
     if exercised:
         return 0.0
     return -(0.5 * vol * vol * spot * spot * gamma + (rate - div_yield) * spot * delta - rate * value)
+

@@ -9,11 +9,21 @@ import numpy as np
 
 from ._types import FloatArray
 from ._validate import check_choice
+from .boundary import monotone_fit
 from .contract import Option
 from .daycount import DEFAULT_DAY_COUNT
 from .errors import InputError
 from .exercise import ExerciseMethod, ProjectedSOR, get_method
-from .greeks import GridReadout, read_at_spot, theta_from_pde
+from .greeks import (
+    RATE_BUMP,
+    VOL_BUMP,
+    GridReadout,
+    bumped_market,
+    central_difference,
+    european_vega_rho,
+    read_at_spot,
+    theta_from_pde,
+)
 from .grid import SpaceGrid, TimeGrid, build_space_grid
 from .market import Market
 from .operator import choose_frame
@@ -69,17 +79,10 @@ class AccuracyPreset:
 
 #: Accuracy presets. Each solves on a grid and on the grid with half the resolution in space
 #: and time, and extrapolates (Richardson); see ``validation/`` for the measured errors.
-#: Tuned on ``benchmarks/run.py``'s 200 seeded typical contracts against a 12001 x 6000 grid
-#: reference: max error / strike 7.7e-5 (fast), 6.9e-7 (standard), 9.9e-8 (fine: its 1e-8
-#: target is not met; the exercise boundary between nodes limits the pair to order ~1.8, and
-#: erratically, so neighbouring resolutions can be several times worse).
-#: Space resolution dominates the error; time levels beyond these barely move it. Narrowing
-#: the domain from 6 to 4 sd moves standard prices by < 1e-10 x K, to 3 sd fast ones by
-#: < 4e-7 x K; fine keeps 6.5 sd so that a put's boundary near expiry, K min(1, r/q), is on it.
 PRESETS: dict[str, AccuracyPreset] = {
-    "fast": AccuracyPreset("fast", 1e-4, 16.0, 3.0, 32, 0.08),
-    "standard": AccuracyPreset("standard", 1e-6, 64.0, 4.0, 100, 0.012),
-    "fine": AccuracyPreset("fine", 1e-8, 160.0, 6.5, 400, 0.008),
+    "fast": AccuracyPreset("fast", 1e-4, 8.0, 4.5, 16, 0.08),
+    "standard": AccuracyPreset("standard", 1e-6, 20.0, 5.5, 100, 0.008),
+    "fine": AccuracyPreset("fine", 1e-8, 80.0, 7.0, 400, 0.002),
 }
 
 
@@ -90,6 +93,10 @@ MAX_COARSE_NODES = 10_000
 #: Below this ``vol * sqrt(T)`` the zero-volatility limit is used (its error is below about
 #: ``0.4 * vol * sqrt(T)`` of the spot, i.e. under 1e-6 of the strike near the money).
 MIN_SD_FOR_GRID = 2e-6
+
+
+#: What ``price(greeks=...)`` accepts.
+GREEKS = ("full", "grid")
 
 
 @dataclass(frozen=True)
@@ -119,11 +126,19 @@ class ExerciseBoundary:
         Time to expiry of each level, increasing, ending at the option's expiry.
     spot : ndarray, shape (n_levels,)
         Critical spot at each level: a put is exercised at or below it, a call at or above.
-        NaN where the option has no exercise region (European, or never optimal).
+        NaN where the option has no exercise region (European, or never optimal). With flat
+        inputs and no cash dividends, the least-squares monotone fit of ``raw_spot`` (see
+        :mod:`stopline.boundary`): equal to it except in the first few steps after expiry,
+        where the located points may step back by up to about one grid spacing. With
+        dividends or term structures the true boundary need not be monotone (it jumps at
+        ex-dates) and ``spot`` is ``raw_spot``.
+    raw_spot : ndarray, shape (n_levels,)
+        The critical spot as located after each step, below the grid spacing (finer grid).
     """
 
     time_to_expiry: FloatArray
     spot: FloatArray
+    raw_spot: FloatArray = field(default_factory=lambda: np.empty(0))
 
 
 @dataclass(frozen=True)
@@ -141,7 +156,8 @@ class SolveStats:
     method : str
         Exercise solver used.
     psor_iterations, psor_max_sweeps : int
-        PSOR sweeps over both grids and the most in one step (0 for the direct sweep).
+        PSOR sweeps over every solve (both grids, and the bumped re-solves for vega and rho)
+        and the most in one step (0 for the direct sweep).
     domain : tuple of float
         Lowest and highest spot on the grid.
     day_count : str
@@ -176,6 +192,17 @@ class Result:
     theta : float
         dV/dt, change in value per year of calendar time (negative when the option loses
         value as time passes), from the Black-Scholes equation at valuation.
+    vega : float
+        dV/dvol per unit of volatility (divide by 100 for one vol point), for a parallel shift
+        of a vol curve. American, or with dividends or curves: a central difference of
+        re-solved prices with the vol bumped by 1 % of itself; European with flat inputs:
+        ``vol T S^2 gamma``.
+    rho : float
+        dV/drate per unit of rate (divide by 10,000 for one basis point), for a parallel shift
+        of a rate curve. American, or with dividends or curves: a central difference of
+        re-solved prices with the rate bumped by 1e-3; European with flat inputs:
+        ``T (S delta - V)``. Vega and rho are NaN when ``price`` was called with
+        ``greeks="grid"``.
     error_estimate : float
         Estimated absolute error of the finer grid's price, ``|V_fine - V_coarse| / 3``; the
         extrapolated price is usually well inside it.
@@ -197,6 +224,8 @@ class Result:
     delta: float
     gamma: float
     theta: float
+    vega: float
+    rho: float
     error_estimate: float
     boundary: ExerciseBoundary
     stats: SolveStats
@@ -265,8 +294,8 @@ def _expired(option: Option, market: Market, method: ExerciseMethod, t: float) -
     empty = np.empty(0)
     stats = SolveStats(0, 0, 0, 0, 0, method.name, 0, 0, (s, s),
                        warnings=("expiry is zero: intrinsic value, no grid solved",))
-    return Result(intrinsic, delta, 0.0, 0.0, 0.0, ExerciseBoundary(empty, empty), stats,
-                  option, market, t, "exact")
+    return Result(intrinsic, delta, 0.0, 0.0, 0.0, 0.0, 0.0, ExerciseBoundary(empty, empty),
+                  stats, option, market, t, "exact")
 
 
 def _zero_vol_limit(option: Option, market: Market, method: ExerciseMethod, t: float) -> Result:
@@ -300,8 +329,18 @@ def _zero_vol_limit(option: Option, market: Market, method: ExerciseMethod, t: f
         f"vol * sqrt(T) = {market.vol * math.sqrt(t):.2g} is below {MIN_SD_FOR_GRID:g}: priced by "
         "the zero-volatility limit (best deterministic exercise time), no grid solved",
     ))
-    return Result(value, delta, 0.0, theta, 0.4 * market.vol * math.sqrt(t) * s, ExerciseBoundary(empty, empty),
-                  stats, option, market, t, "exact")
+    # rho of the deterministic exercise value; vega that of a European expiring at best_u
+    # (Black-Scholes 1973), which tends to zero except at the forward
+    rho = -sign * best_u * k * math.exp(-r * best_u) if value > 0.0 else 0.0
+    vega = 0.0
+    if best_u > 0.0:
+        sq = market.vol * math.sqrt(best_u)
+        d1 = (math.log(s / k) + (r - q) * best_u) / sq + 0.5 * sq
+        vega = s * math.exp(-q * best_u) * math.sqrt(best_u) * math.exp(-0.5 * d1 * d1) / math.sqrt(
+            2.0 * math.pi
+        )
+    return Result(value, delta, 0.0, theta, vega, rho, 0.4 * market.vol * math.sqrt(t) * s,
+                  ExerciseBoundary(empty, empty), stats, option, market, t, "exact")
 
 
 def price(
@@ -311,12 +350,23 @@ def price(
     accuracy: str = "standard",
     method: str | ExerciseMethod = "direct",
     grid: GridSpec | tuple[int, int] | None = None,
+    greeks: str = "full",
 ) -> Result:
     """Price an option by Crank-Nicolson finite differences, with Greeks and error estimate.
 
     The equation is solved on two nested grids (the second with half the spacing in space
     and twice the time levels); the price, delta and gamma are extrapolated from the pair
-    (Richardson), and half their difference estimates the error.
+    (Richardson), and a third of their difference estimates the error. Theta follows from
+    the equation at valuation. Vega and rho are central differences of prices re-solved with
+    the vol (rate) bumped up and down, on the same two grids (built once from the unbumped
+    inputs, so a bump moves no node), each bumped price extrapolated like the price: four
+    extra solves per Greek, ten solves in all, so an American price costs about five times
+    the price alone (measured at "standard", one-year put: 3.8 ms against 0.74 ms). Solving
+    the bumps on the coarse grid and its halving instead would cost about twice the price
+    alone but was measured to leave American vegas and rhos up to 0.3 % off (0.04 % as done
+    here); see ``benchmarks/greek_bumps.py``. A European option with flat inputs and no cash
+    dividends needs no re-solve: ``vega = vol T S^2 gamma`` and ``rho = T (S delta - V)``
+    hold exactly in the model. See :mod:`stopline.greeks`.
 
     Parameters
     ----------
@@ -330,6 +380,12 @@ def price(
         Solver of the early-exercise constraint (see :mod:`stopline.exercise`).
     grid : GridSpec or (space_points, time_levels), optional
         Expert override of the finer grid; ``accuracy`` is then ignored.
+    greeks : {"full", "grid"}
+        ``"full"`` (default) also computes vega and rho, which for American options (and
+        any option with cash dividends or curves) costs four re-solves of the grid pair;
+        ``"grid"`` returns only what the grid holds (price, delta, gamma, theta) and sets
+        vega and rho to NaN: the choice for loops that need prices only (implied vols,
+        batch re-pricing).
 
     Returns
     -------
@@ -353,6 +409,7 @@ def price(
     >>> round(r.price, 4)
     4.2842
     """
+    greeks = check_choice("greeks", greeks, GREEKS)
     solver = get_method(method)
     t = option.time_to_expiry(market.valuation_date)
     if t == 0.0:
@@ -396,19 +453,46 @@ def price(
     value = rf.value + (rf.value - rc.value) / 3.0
     delta = rf.delta + (rf.delta - rc.delta) / 3.0
     gamma = rf.gamma + (rf.gamma - rc.gamma) / 3.0
+    vega = rho = 0.0
+    psor = [coarse.report, fine.report]
+    if rf.exercised != rc.exercised:  # the grids put the spot on different sides of the
+        value, delta, gamma = rf.value, rf.delta, rf.gamma  # boundary: do not extrapolate
     if rf.exercised:
         # exercised at once: the intrinsic value of the real spot (also under escrowed dividends)
         value = max(k - market.spot, 0.0) if option.is_put else max(market.spot - k, 0.0)
         delta, gamma = rf.delta, rf.gamma
+    flat = problem.curves is None and not problem.dividend_tau
+    if greeks == "grid":
+        vega = rho = math.nan
+    elif not rf.exercised and (american or not flat):
+        # vega, rho: re-solves with the market's vol (rate) shifted in parallel, on the same
+        # two grids (the bump moves no node), each bumped price extrapolated like the price
+        pair = ((space_c, time_c), (space_f, time_f))
+        dv, dr = VOL_BUMP * problem.vol, RATE_BUMP
+        bumped = []
+        for changes in ({"vol": dv}, {"vol": -dv}, {"rate": dr}, {"rate": -dr}):
+            p = problem_from_market(option, bumped_market(market, **changes), t)
+            lo, hi = (solve(p, sg, tg, solver) for sg, tg in pair)
+            psor += [lo.report, hi.report]
+            v_lo, v_hi = _read(lo, p, k).value, _read(hi, p, k).value
+            bumped.append(v_hi + (v_hi - v_lo) / 3.0)
+        vega = central_difference(bumped[0], bumped[1], dv)
+        rho = central_difference(bumped[2], bumped[3], dr)
     # extrapolation may step below a bound the true price obeys; the bound is then closer
     floor = max(k - market.spot, 0.0) if option.is_put else max(market.spot - k, 0.0)
     value = max(value, floor if american else 0.0)
     # likewise delta: within [-1, 0] for a put and [0, 1] for a call (e^{-qT} when q < 0)
     dmax = max(1.0, math.exp(-problem.div_yield * t))
     delta = min(max(delta, -dmax), 0.0) if option.is_put else min(max(delta, 0.0), dmax)
+    if not american and flat and greeks == "full":
+        # European with flat inputs: exact identities of the model, no re-solve needed
+        vega, rho = european_vega_rho(market.spot, value, delta, gamma, problem.vol, t)
     theta = theta_at_valuation(problem, market.spot, k, value, delta, gamma, rf.exercised)
     err = abs(rf.value - rc.value) / 3.0
-    boundary = ExerciseBoundary(fine.boundary_times.copy(), k * np.exp(fine.report.boundary_x))
+    raw = k * np.exp(fine.report.boundary_x)
+    # with flat inputs and no dividends the true boundary is monotone in time to expiry
+    spot_b = monotone_fit(raw, decreasing=option.is_put) if flat else raw.copy()
+    boundary = ExerciseBoundary(fine.boundary_times.copy(), spot_b, raw)
     stats = SolveStats(
         space_points=space_f.n,
         time_levels=time_f.levels,
@@ -416,17 +500,20 @@ def price(
         coarse_space_points=space_c.n,
         coarse_time_levels=time_c.levels,
         method=solver.name,
-        psor_iterations=coarse.report.iterations + fine.report.iterations,
-        psor_max_sweeps=max(coarse.report.max_iterations, fine.report.max_iterations),
+        psor_iterations=sum(r.iterations for r in psor),
+        psor_max_sweeps=max(r.max_iterations for r in psor),
         domain=(k * math.exp(fine.x_min), k * math.exp(fine.x_min + (space_f.n - 1) * space_f.h)),
         warnings=tuple(warnings),
     )
-    return Result(value, delta, gamma, theta, err, boundary, stats, option, market, t, acc_name)
+    return Result(value, delta, gamma, theta, vega, rho, err, boundary, stats, option, market,
+                  t, acc_name)
 
 
 def _read(sol: GridSolution, problem: PDEProblem, strike: float) -> GridReadout:
     return read_at_spot(
-        sol.values, sol.payoff, sol.x_min, sol.space.h, problem.x_spot, strike, problem.american
+        sol.values, sol.payoff, sol.x_min, sol.space.h, problem.x_spot, strike,
+        problem.american, float(sol.report.boundary_x[-1]) if problem.american else math.nan,
+        problem.is_put,
     )
 
 

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import typer
 
+from . import boundary as _boundary
 from . import crosscheck as _crosscheck
 from . import demo as _demo
 from . import implied as _implied
@@ -23,6 +24,7 @@ app = typer.Typer(
 )
 app.command("price")(_price.price_cmd)
 app.command("demo")(_demo.demo_cmd)
+app.command("boundary")(_boundary.boundary_cmd)
 app.command("implied")(_implied.implied_cmd)
 app.command("crosscheck")(_crosscheck.crosscheck_cmd)
 app.command("validate")(_validate.validate_cmd)

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 from enum import Enum
+from pathlib import Path
 
 import typer
 from rich.console import Console
@@ -64,9 +65,13 @@ def price_cmd(
         DividendModel.spot, "--dividend-model",
         help="spot (spot drops on the ex-date) or escrowed (spot less PV of dividends is lognormal).",
     ),
+    plot: Path = typer.Option(
+        None, "--plot", help="Also write a figure of value, payoff, delta and gamma across spot (PNG)."
+    ),
 ) -> None:
     """Price one American or European option with its Greeks and error estimate."""
     from .. import Market, Option
+    from ..errors import InputError
     from ..market import parse_dividends
     from ..pricing import price
 
@@ -76,11 +81,26 @@ def price_cmd(
         spot, rate, vol, div_yield=div_yield, valuation_date=valuation_date,
         dividends=dividends, dividend_model=dividend_model.value,
     )
+    if plot is not None and not plot.resolve().parent.is_dir():
+        raise InputError("plot", str(plot), "its folder does not exist")
     res = price(option, market, accuracy=accuracy.value, method=method.value)
+    if plot is not None:
+        from ..plots import plot_value_profile, save_figure
+        from ..profile import value_profile
+
+        if res.stats.space_points == 0:
+            raise InputError("expiry", expiry, "is the valuation date: no profile to draw")
+        profile = value_profile(option, market, accuracy=accuracy.value, method=method.value)
+        save_figure(plot_value_profile(profile), plot)
     if as_json:
-        typer.echo(json.dumps(result_record(res), indent=2))
+        record = result_record(res)
+        if plot is not None:
+            record["plot"] = str(plot)
+        typer.echo(json.dumps(record, indent=2))
         return
     show_result(res)
+    if plot is not None:
+        typer.echo(f"figure: {plot}")
 
 
 def result_record(res) -> dict:  # noqa: ANN001 - Result, imported lazily
@@ -106,6 +126,8 @@ def result_record(res) -> dict:  # noqa: ANN001 - Result, imported lazily
         "delta": res.delta,
         "gamma": res.gamma,
         "theta": res.theta,
+        "vega": res.vega,
+        "rho": res.rho,
         "error_estimate": res.error_estimate,
         "accuracy": res.accuracy,
         "method": st.method,
@@ -160,6 +182,8 @@ def show_result(res) -> None:  # noqa: ANN001
     out.add_row("delta", f"{res.delta:.6f}", "dV/dS")
     out.add_row("gamma", f"{res.gamma:.6f}", "d2V/dS2")
     out.add_row("theta", f"{res.theta:.6f}", "dV/dt per year of calendar time")
+    out.add_row("vega", f"{res.vega:.6f}", "dV/dvol per unit of vol (/100 per vol point)")
+    out.add_row("rho", f"{res.rho:.6f}", "dV/drate per unit of rate (/10,000 per basis point)")
     console.print(out)
     grid = (
         f"grid {st.space_points} x {st.time_levels} (and {st.coarse_space_points} x "
