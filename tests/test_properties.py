@@ -37,6 +37,7 @@ def _slack(k: float, *results) -> float:
 @example("put", 1.0, 0.0625, 2.0, 1.0, -0.03125, 0.0)  # found: put above K at negative rate
 @example("put", 1.0, 0.25, 2.0, 5.0, 0.0, 0.0)  # found: "fast" delta > 0 at vol 500 %
 @example("put", 1.0, 0.01, 16.0, 0.01171875, -0.046875, 0.0)  # found: delta just below -1
+@example("call", 1.0, 12.0, 4.0, 0.015625, 0.25, 0.125)  # found: read-off on an all-exercised grid
 def test_bounds_and_finiteness(kind, k, m, t, v, r, q) -> None:
     s = k * m
     mkt = Market(s, r, v, q)

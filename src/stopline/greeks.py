@@ -141,6 +141,7 @@ def fd_weights(z: float, x: FloatArray, m: int) -> FloatArray:
 def read_at_spot(
     values: FloatArray, payoff: FloatArray, x_min: float, h: float, x_spot: float,
     strike: float, american: bool, x_boundary: float = math.nan,
+    is_put: bool | None = None,
 ) -> GridReadout:
     """Quintic read-off of value, delta and gamma at ``x_spot``.
 
@@ -159,13 +160,17 @@ def read_at_spot(
     x_boundary : float, optional
         Located critical log-moneyness at valuation (NaN if none). Without it, the spot counts
         as exercised when every stencil node is.
+    is_put : bool, optional
+        The option's kind; when not given it is inferred from where the payoff is positive,
+        which fails on a grid that lies wholly in the money.
     """
     n = values.shape[0]
     p = min(STENCIL, n)
     j = int(math.floor((x_spot - x_min) / h))
     j0 = min(max(j - p // 2 + 1, 0), n - p)
     if american:
-        put_side = payoff[0] > 0.0  # a put's payoff is positive at the low end
+        # a put's payoff is positive at the low end
+        put_side = bool(is_put) if is_put is not None else payoff[0] > 0.0
         e = math.exp(x_spot)
         intrinsic = max(1.0 - e, 0.0) if put_side else max(e - 1.0, 0.0)
         if math.isfinite(x_boundary):
@@ -175,7 +180,9 @@ def read_at_spot(
         if inside and intrinsic > 0.0:
             return GridReadout(strike * intrinsic, -1.0 if put_side else 1.0, 0.0, True)
         held = (values > payoff) | (payoff <= 0.0)
-        if put_side:
+        if not held.any():
+            pass  # every node exercised: the stencil stays around the spot
+        elif put_side:
             first = int(np.argmax(held))  # first held node from the low end
             if first + p <= n:
                 j0 = max(j0, first)

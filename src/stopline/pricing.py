@@ -498,6 +498,7 @@ def _read(sol: GridSolution, problem: PDEProblem, strike: float) -> GridReadout:
     return read_at_spot(
         sol.values, sol.payoff, sol.x_min, sol.space.h, problem.x_spot, strike,
         problem.american, float(sol.report.boundary_x[-1]) if problem.american else math.nan,
+        problem.is_put,
     )
 
 
