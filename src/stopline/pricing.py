@@ -95,6 +95,10 @@ MAX_COARSE_NODES = 10_000
 MIN_SD_FOR_GRID = 2e-6
 
 
+#: What ``price(greeks=...)`` accepts.
+GREEKS = ("full", "grid")
+
+
 @dataclass(frozen=True)
 class GridSpec:
     """An expert's grid: total space nodes and graded time intervals of the fine grid.
@@ -197,7 +201,8 @@ class Result:
         dV/drate per unit of rate (divide by 10,000 for one basis point), for a parallel shift
         of a rate curve. American, or with dividends or curves: a central difference of
         re-solved prices with the rate bumped by 1e-3; European with flat inputs:
-        ``T (S delta - V)``.
+        ``T (S delta - V)``. Vega and rho are NaN when ``price`` was called with
+        ``greeks="grid"``.
     error_estimate : float
         Estimated absolute error of the finer grid's price, ``|V_fine - V_coarse| / 3``; the
         extrapolated price is usually well inside it.
@@ -345,6 +350,7 @@ def price(
     accuracy: str = "standard",
     method: str | ExerciseMethod = "direct",
     grid: GridSpec | tuple[int, int] | None = None,
+    greeks: str = "full",
 ) -> Result:
     """Price an option by Crank-Nicolson finite differences, with Greeks and error estimate.
 
@@ -374,6 +380,12 @@ def price(
         Solver of the early-exercise constraint (see :mod:`stopline.exercise`).
     grid : GridSpec or (space_points, time_levels), optional
         Expert override of the finer grid; ``accuracy`` is then ignored.
+    greeks : {"full", "grid"}
+        ``"full"`` (default) also computes vega and rho, which for American options (and
+        any option with cash dividends or curves) costs four re-solves of the grid pair;
+        ``"grid"`` returns only what the grid holds (price, delta, gamma, theta) and sets
+        vega and rho to NaN: the choice for loops that need prices only (implied vols,
+        batch re-pricing).
 
     Returns
     -------
@@ -397,6 +409,7 @@ def price(
     >>> round(r.price, 4)
     4.2842
     """
+    greeks = check_choice("greeks", greeks, GREEKS)
     solver = get_method(method)
     t = option.time_to_expiry(market.valuation_date)
     if t == 0.0:
@@ -449,7 +462,9 @@ def price(
         value = max(k - market.spot, 0.0) if option.is_put else max(market.spot - k, 0.0)
         delta, gamma = rf.delta, rf.gamma
     flat = problem.curves is None and not problem.dividend_tau
-    if not rf.exercised and (american or not flat):
+    if greeks == "grid":
+        vega = rho = math.nan
+    elif not rf.exercised and (american or not flat):
         # vega, rho: re-solves with the market's vol (rate) shifted in parallel, on the same
         # two grids (the bump moves no node), each bumped price extrapolated like the price
         pair = ((space_c, time_c), (space_f, time_f))
@@ -469,7 +484,7 @@ def price(
     # likewise delta: within [-1, 0] for a put and [0, 1] for a call (e^{-qT} when q < 0)
     dmax = max(1.0, math.exp(-problem.div_yield * t))
     delta = min(max(delta, -dmax), 0.0) if option.is_put else min(max(delta, 0.0), dmax)
-    if not american and flat:
+    if not american and flat and greeks == "full":
         # European with flat inputs: exact identities of the model, no re-solve needed
         vega, rho = european_vega_rho(market.spot, value, delta, gamma, problem.vol, t)
     theta = theta_at_valuation(problem, market.spot, k, value, delta, gamma, rf.exercised)
