@@ -8,7 +8,7 @@ import math
 import numpy as np
 import pytest
 
-from stopline import GridSpec, Market, Option, ProjectedSOR, Result, price
+from stopline import GridSpec, InputError, Market, Option, ProjectedSOR, Result, price
 
 from ._bsm import bsm
 
@@ -208,3 +208,15 @@ def test_expiry_as_date_uses_act365() -> None:
     assert res.time_to_expiry == pytest.approx(182 / 365)
     same = price(Option("put", 100.0, 182 / 365), Market(100.0, 0.05, 0.2))
     assert res.price == pytest.approx(same.price, abs=1e-12)
+
+
+def test_grid_greeks_skip_the_bumped_solves() -> None:
+    # common practice: what the grid holds is identical either way; vega and rho are NaN
+    opt, mkt = Option("put", 100.0, 0.5), Market(95.0, 0.05, 0.3, 0.01)
+    full = price(opt, mkt)
+    grid = price(opt, mkt, greeks="grid")
+    assert (grid.price, grid.delta, grid.gamma, grid.theta) == (full.price, full.delta, full.gamma, full.theta)
+    assert math.isnan(grid.vega) and math.isnan(grid.rho)
+    assert math.isfinite(full.vega) and full.vega > 0 and full.rho < 0
+    with pytest.raises(InputError, match="greeks"):
+        price(opt, mkt, greeks="some")

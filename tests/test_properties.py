@@ -37,12 +37,13 @@ def _slack(k: float, *results) -> float:
 @example("put", 1.0, 0.0625, 2.0, 1.0, -0.03125, 0.0)  # found: put above K at negative rate
 @example("put", 1.0, 0.25, 2.0, 5.0, 0.0, 0.0)  # found: "fast" delta > 0 at vol 500 %
 @example("put", 1.0, 0.01, 16.0, 0.01171875, -0.046875, 0.0)  # found: delta just below -1
+@example("call", 1.0, 12.0, 4.0, 0.015625, 0.25, 0.125)  # found: read-off on an all-exercised grid
 def test_bounds_and_finiteness(kind, k, m, t, v, r, q) -> None:
     s = k * m
     mkt = Market(s, r, v, q)
     # "standard": the accuracy promised everywhere (1e-5 x strike) is the standard preset's
-    am = price(Option(kind, k, t), mkt)
-    eu = price(Option(kind, k, t, style="european"), mkt)
+    am = price(Option(kind, k, t), mkt, greeks="grid")
+    eu = price(Option(kind, k, t, style="european"), mkt, greeks="grid")
     for res in (am, eu):
         assert all(math.isfinite(x) for x in (res.price, res.delta, res.gamma, res.theta))
     slack = _slack(k, am, eu)
@@ -64,7 +65,7 @@ def test_monotone_and_convex_in_spot(kind, m, t, v, r, q) -> None:
     k = 100.0
     opt = Option(kind, k, t)
     step = 0.02 * k * m
-    rs = [price(opt, Market(k * m + i * step, r, v, q)) for i in (-1, 0, 1)]
+    rs = [price(opt, Market(k * m + i * step, r, v, q), greeks="grid") for i in (-1, 0, 1)]
     slack = _slack(k, *rs)
     p = [x.price for x in rs]
     if kind == "put":
@@ -79,9 +80,9 @@ def test_monotone_and_convex_in_spot(kind, m, t, v, r, q) -> None:
 def test_american_increases_with_vol_and_expiry(kind, m, t, v, r, q) -> None:
     k = 100.0
     mkt = Market(k * m, r, v, q)
-    base = price(Option(kind, k, t), mkt)
-    more_vol = price(Option(kind, k, t), Market(k * m, r, v * 1.1, q))
-    longer = price(Option(kind, k, min(t * 1.2, 50.0)), mkt)
+    base = price(Option(kind, k, t), mkt, greeks="grid")
+    more_vol = price(Option(kind, k, t), Market(k * m, r, v * 1.1, q), greeks="grid")
+    longer = price(Option(kind, k, min(t * 1.2, 50.0)), mkt, greeks="grid")
     assert more_vol.price >= base.price - _slack(k, base, more_vol)
     assert longer.price >= base.price - _slack(k, base, longer)
 
@@ -92,6 +93,6 @@ def test_american_increases_with_vol_and_expiry(kind, m, t, v, r, q) -> None:
 def test_put_call_symmetry(m, t, v, r, q) -> None:
     # McDonald & Schroder (1998), J. Comput. Finance 1(3): C(S, K, r, q) = P(K, S, q, r).
     k, s = 100.0, 100.0 * m
-    c = price(Option("call", k, t), Market(s, r, v, q))
-    p = price(Option("put", s, t), Market(k, q, v, r))
+    c = price(Option("call", k, t), Market(s, r, v, q), greeks="grid")
+    p = price(Option("put", s, t), Market(k, q, v, r), greeks="grid")
     assert abs(c.price - p.price) <= _slack(max(k, s), c, p)

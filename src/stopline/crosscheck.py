@@ -395,7 +395,7 @@ def _diagnose(
             continue
         option, market, phrase = built
         try:
-            value = price(option, market, accuracy=settings.accuracy).price
+            value = price(option, market, accuracy=settings.accuracy, greeks="grid").price
         except StoplineError:
             continue
         if abs(line.quote - value) <= allowed:
@@ -502,8 +502,8 @@ def _fmt(x: float) -> str:
 
 
 def _vega(line: QuoteLine, res: object, accuracy: str) -> float:
-    vega = getattr(res, "vega", None)  # Result.vega lands with branch `greeks`
-    if vega is not None:
+    vega = getattr(res, "vega", math.nan)
+    if math.isfinite(vega):
         return float(vega)
     m = line.market
     up = m.vol + VEGA_BUMP if m.vol + VEGA_BUMP <= VOL_RANGE[1] else m.vol  # one-sided at the ends

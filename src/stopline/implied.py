@@ -267,7 +267,7 @@ def implied_vol_detail(
         nonlocal calls
         calls += 1
         mkt = dataclasses.replace(market, vol=vol)
-        res = price(option, mkt, accuracy=acc)
+        res = price(option, mkt, accuracy=acc, greeks="grid")
         error_estimates[vol] = res.error_estimate
         return res.price
 
