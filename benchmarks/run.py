@@ -176,11 +176,15 @@ def time_per_call(fn, items: list, repeats: int, tag: str = "") -> float:  # noq
     return statistics.median(per)
 
 
-def preset_study(cases, objs, refs, name, repeats, method="direct"):  # noqa: ANN001, ANN201
-    results = [price(o, m, accuracy=name, method=method) for o, m in objs]
+def preset_study(cases, objs, refs, name, repeats, method="direct", greeks="grid"):  # noqa: ANN001, ANN201
+    """Prices (``greeks="grid"``: price, delta, gamma, theta; no vega/rho re-solves), their
+    errors against the references, and the CPU time per price."""
+    results = [price(o, m, accuracy=name, method=method, greeks=greeks) for o, m in objs]
     errs = np.array([abs(r.price - ref["ref"]) / STRIKE for r, ref in zip(results, refs, strict=True)])
-    t = time_per_call(lambda om: price(om[0], om[1], accuracy=name, method=method), objs, repeats,
-                      tag=f"{name}/{method}/{len(objs)}")
+    t = time_per_call(
+        lambda om: price(om[0], om[1], accuracy=name, method=method, greeks=greeks), objs,
+        repeats, tag=f"{name}/{method}/{greeks}/{len(objs)}",
+    )
     return results, errs, t
 
 
@@ -274,10 +278,10 @@ def batch_study(objs, n_options: int) -> dict:  # noqa: ANN001
     mkts = [m for _, m in rows]
     out = {}
     for w in (1, 2):
-        price_many(opts[:8], mkts[:8], workers=w)  # warm-up
+        price_many(opts[:8], mkts[:8], workers=w, greeks="grid")  # warm-up
         c0 = os.times()
         t0 = time.perf_counter()
-        price_many(opts, mkts, accuracy="standard", workers=w)
+        price_many(opts, mkts, accuracy="standard", workers=w, greeks="grid")
         wall = time.perf_counter() - t0
         c1 = os.times()
         cpu = (c1.user + c1.system - c0.user - c0.system) + (
@@ -310,7 +314,7 @@ def implied_study(objs, repeats: int) -> dict | None:  # noqa: ANN001
         if len(quotes) == 20:
             break
     t_iv = time_per_call(lambda x: fn(x[0], x[1], x[2]), quotes, repeats)
-    t_px = time_per_call(lambda x: price(x[0], x[1]), quotes, repeats)
+    t_px = time_per_call(lambda x: price(x[0], x[1], greeks="grid"), quotes, repeats)
     return {"time_iv_ms": 1e3 * t_iv, "time_price_ms": 1e3 * t_px, "ratio": t_iv / t_px,
             "n_quotes": len(quotes)}
 
@@ -399,6 +403,7 @@ def main(argv: list[str] | None = None) -> dict:
     for name in PRESET_NAMES:
         print(f"timing {name} ...", flush=True)
         results, errs, t = preset_study(cases, objs, refs, name, repeats)
+        _, _, t_full = preset_study(cases, objs, refs, name, max(repeats // 2, 1), greeks="full")
         t_thomas = thomas_time(results, repeats)
         t_fixed = thomas_time(results, repeats, _kernels.thomas_repeat_fixed_point)
         sub = slice(0, n_psor)
@@ -406,14 +411,17 @@ def main(argv: list[str] | None = None) -> dict:
                                       method="psor")
         _, _, t_d_sub = preset_study(cases[sub], objs[sub], refs[sub], name, max(repeats // 2, 1))
         sub_t = slice(0, n_tree)
-        t_fd_tree = time_per_call(lambda om, nm=name: price(om[0], om[1], accuracy=nm),
-                                  objs[sub_t], repeats)
+        t_fd_tree = time_per_call(
+            lambda om, nm=name: price(om[0], om[1], accuracy=nm, greeks="grid"), objs[sub_t],
+            repeats,
+        )
         fd_err_tree = float(errs[sub_t].max())
         print(f"  binomial tree at max error {fd_err_tree:.1e} ...", flush=True)
         tree = tree_study(cases[sub_t], refs[sub_t], fd_err_tree, t_fd_tree, tree_max)
         sizes = [(r.stats.space_points, r.stats.time_steps) for r in results]
         rows[name] = {
             "time_ms": 1e3 * t,
+            "time_full_greeks_ms": 1e3 * t_full,
             "max_error": float(errs.max()),
             "median_error": float(np.median(errs)),
             "p99_error": float(np.quantile(errs, 0.99)),
@@ -478,8 +486,10 @@ def render(rep: dict) -> str:
         lines.append(f"| {label:<46} | " + " | ".join(f"{v:>11}" for v in vals)
                      + f" | {target:<22} |")
 
-    row("time per American price, ms", [fmt_ms(P[n]["time_ms"] / 1e3) for n in PRESET_NAMES],
-        "0.05 / 0.3 / 5")
+    row("time per American price, ms (greeks='grid')",
+        [fmt_ms(P[n]["time_ms"] / 1e3) for n in PRESET_NAMES], "0.05 / 0.3 / 5")
+    row("  with vega and rho (greeks='full'), ms",
+        [fmt_ms(P[n]["time_full_greeks_ms"] / 1e3) for n in PRESET_NAMES])
     row("max error / strike (all cases)", [f"{P[n]['max_error']:.1e}" for n in PRESET_NAMES],
         "1e-4 / 1e-6 / 1e-8")
     row("99th percentile error / strike", [f"{P[n]['p99_error']:.1e}" for n in PRESET_NAMES])
@@ -504,7 +514,7 @@ def render(rep: dict) -> str:
         [f"{P[n]['psor_max_error']:.0e}/{P[n]['direct_max_error_same_subset']:.0e}"
          for n in PRESET_NAMES])
     b = {int(k): v for k, v in rep["batch_options_per_s"].items()}
-    row("batch, standard, options/s: 1 / 2 workers", ["", f"{b[1]['wall']:.0f}/{b[2]['wall']:.0f}",
+    row("batch, standard, grid greeks, options/s: 1 / 2", ["", f"{b[1]['wall']:.0f}/{b[2]['wall']:.0f}",
                                                      ""], ">= 3000 on 2 workers")
     row("  same, from CPU time (w free cores)",
         ["", f"{b[1]['cpu_bound']:.0f}/{b[2]['cpu_bound']:.0f}", ""])

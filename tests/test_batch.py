@@ -33,6 +33,20 @@ def test_batch_equals_single_prices_exactly(rng: np.random.Generator, workers: i
         np.testing.assert_array_equal(r.boundary.spot, one.boundary.spot)
 
 
+def test_grid_greeks_pass_through_and_equal_single_prices(rng: np.random.Generator) -> None:
+    opts, mkts = _book(rng, 4)
+    got = price_many(opts, mkts, accuracy="fast", greeks="grid")
+    for o, m, r in zip(opts, mkts, got, strict=True):
+        one = price(o, m, accuracy="fast", greeks="grid")
+        assert r.price == one.price and r.delta == one.delta
+        assert np.isnan(r.vega) and np.isnan(one.vega)  # "grid" leaves vega and rho out
+
+
+def test_bad_greeks_is_refused() -> None:
+    with pytest.raises(InputError, match="greeks"):
+        price_many([Option("put", 100.0, 1.0)], Market(100.0, 0.0, 0.2), greeks="some")
+
+
 def test_one_market_is_shared_by_every_option() -> None:
     mkt = Market(100.0, 0.03, 0.25)
     opts = [Option("put", k, 0.5) for k in (90.0, 100.0, 110.0)]
