@@ -34,6 +34,7 @@ __all__ = [
     "locate_boundary",
     "thomas_repeat",
     "thomas_repeat_fixed_point",
+    "fornberg_weights",
     "dividend_jump",
     "value_after_drop",
 ]
@@ -637,3 +638,32 @@ def thomas_repeat_fixed_point(rhs0, a, b, c, n_solves, out):
         for i in range(n - 2, -1, -1):
             y = r[i] - c * w[i] * y
             out[i] = y
+
+
+@njit(cache=True)
+def fornberg_weights(z, x, m):
+    """Weights, shape (m + 1, p), of derivatives 0..m at ``z`` of the polynomial through the
+    nodes ``x`` (Fornberg 1988); row ``k`` dotted with nodal values gives the ``k``-th
+    derivative. The numba twin of :func:`stopline.greeks.fd_weights`' algorithm."""
+    p = x.shape[0]
+    c = np.zeros((m + 1, p))
+    c1 = 1.0
+    c4 = x[0] - z
+    c[0, 0] = 1.0
+    for i in range(1, p):
+        mn = min(i, m)
+        c2 = 1.0
+        c5 = c4
+        c4 = x[i] - z
+        for j in range(i):
+            c3 = x[i] - x[j]
+            c2 *= c3
+            if j == i - 1:
+                for k in range(mn, 0, -1):
+                    c[k, i] = c1 * (k * c[k - 1, i - 1] - c5 * c[k, i - 1]) / c2
+                c[0, i] = -c1 * c5 * c[0, i - 1] / c2
+            for k in range(mn, 0, -1):
+                c[k, j] = (c4 * c[k, j] - k * c[k - 1, j]) / c3
+            c[0, j] = c4 * c[0, j] / c3
+        c1 = c2
+    return c

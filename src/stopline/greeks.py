@@ -44,6 +44,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
+from . import _kernels
 from ._types import FloatArray
 
 if TYPE_CHECKING:
@@ -114,28 +115,7 @@ def fd_weights(z: float, x: FloatArray, m: int) -> FloatArray:
     ----------
     Fornberg, B. (1988), Mathematics of Computation 51(184), 699-706.
     """
-    p = x.shape[0]
-    c = np.zeros((m + 1, p))
-    c1 = 1.0
-    c4 = x[0] - z
-    c[0, 0] = 1.0
-    for i in range(1, p):
-        mn = min(i, m)
-        c2 = 1.0
-        c5 = c4
-        c4 = x[i] - z
-        for j in range(i):
-            c3 = x[i] - x[j]
-            c2 *= c3
-            if j == i - 1:
-                for k in range(mn, 0, -1):
-                    c[k, i] = c1 * (k * c[k - 1, i - 1] - c5 * c[k, i - 1]) / c2
-                c[0, i] = -c1 * c5 * c[0, i - 1] / c2
-            for k in range(mn, 0, -1):
-                c[k, j] = (c4 * c[k, j] - k * c[k - 1, j]) / c3
-            c[0, j] = c4 * c[0, j] / c3
-        c1 = c2
-    return c
+    return _kernels.fornberg_weights(float(z), np.ascontiguousarray(x, dtype=np.float64), int(m))
 
 
 def read_at_spot(
