@@ -80,9 +80,9 @@ class AccuracyPreset:
 #: Accuracy presets. Each solves on a grid and on the grid with half the resolution in space
 #: and time, and extrapolates (Richardson); see ``validation/`` for the measured errors.
 PRESETS: dict[str, AccuracyPreset] = {
-    "fast": AccuracyPreset("fast", 1e-4, 8.0, 4.5, 16, 0.08),
+    "fast": AccuracyPreset("fast", 1e-4, 16.0, 4.0, 32, 0.04),
     "standard": AccuracyPreset("standard", 1e-6, 20.0, 5.5, 100, 0.008),
-    "fine": AccuracyPreset("fine", 1e-8, 80.0, 7.0, 400, 0.002),
+    "fine": AccuracyPreset("fine", 1e-8, 120.0, 7.0, 600, 0.0015),
 }
 
 
