@@ -15,7 +15,7 @@ __all__ = ["CAUTION", "guard", "parse_expiry", "fail"]
 
 #: Printed with every answer a person reads.
 CAUTION = (
-    "Model estimate under stated assumptions (lognormal spot, the given flat vol, rate and "
+    "Model estimate under stated assumptions (lognormal spot; the given vol, rates and "
     "dividends); not investment advice. Use under your firm's model-risk policy."
 )
 
