@@ -441,3 +441,14 @@ def test_cash_dividends_are_priced_and_their_omission_is_diagnosed():
     assert chk.status == "mismatch"
     assert "dividends left out" in chk.note
     assert check_row(r).status != "error"
+
+
+def test_other_dividend_model_is_tried():
+    # common practice: vendors differ in how a cash dividend moves the spot (spot drop vs
+    # escrowed); a quote from the escrowed model is explained by switching models
+    opt = Option("call", 95.0, 1.0)
+    esc = Market(100.0, 0.05, 0.3, dividends=[(0.5, 6.0)], dividend_model="escrowed")
+    quote = price(opt, esc).price
+    chk = check_row(row(kind="call", strike="95", div_yield="0", dividends="0.5:6", quote=f"{quote:.10f}"))
+    assert chk.status == "mismatch", chk.note
+    assert "escrowed dividend model" in chk.note

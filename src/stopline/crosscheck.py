@@ -359,6 +359,15 @@ def _act360(line: QuoteLine) -> tuple[Option, Market, str] | None:
         f"ACT/360 time instead of ACT/365 (T={t360:.6g} instead of {t365:.6g} years)"
 
 
+def _other_dividend_model(line: QuoteLine) -> tuple[Option, Market, str] | None:
+    m = line.market
+    if not m.dividends:
+        return None
+    other = "escrowed" if m.dividend_model == "spot" else "spot"
+    return line.option, replace(m, dividend_model=other), \
+        f"the {other} dividend model instead of the {m.dividend_model} model"
+
+
 def _quote_vol(line: QuoteLine) -> tuple[Option, Market, str] | None:
     m = line.market
     if line.quote_vol is None or line.quote_vol == m.vol:
@@ -374,6 +383,7 @@ ALTERNATIVES: tuple[Alternative, ...] = (
     Alternative("european", "priced as European", _as_european),
     Alternative("american", "priced as American", _as_american),
     Alternative("no_dividends", "dividends left out", _without_dividends),
+    Alternative("dividend_model", "the other cash-dividend model", _other_dividend_model),
     Alternative("act360", "ACT/360 time", _act360),
     Alternative("quote_vol", "the third party's own vol", _quote_vol),
 )
