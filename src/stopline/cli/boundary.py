@@ -3,46 +3,57 @@
 from __future__ import annotations
 
 from pathlib import Path
+from typing import Annotated
 
 import typer
 
-from ._common import CAUTION, guard, parse_expiry
-from .price import Accuracy, DividendModel, Kind, Method, Style
+from ._common import CAUTION, guard
+from ._contract_options import (
+    Accuracy,
+    AccuracyOpt,
+    DividendModel,
+    DividendModelOpt,
+    DividendOpt,
+    DivYieldOpt,
+    ExpiryOpt,
+    KindOpt,
+    Method,
+    MethodOpt,
+    RateOpt,
+    SpotOpt,
+    StrikeOpt,
+    Style,
+    ValuationDateOpt,
+    VolOpt,
+    build_contract,
+)
 
 __all__ = ["boundary_cmd"]
 
 
 @guard
 def boundary_cmd(
-    kind: Kind = typer.Option(..., "--kind", help="put or call."),
-    spot: float = typer.Option(..., "--spot", help="Price of the underlying."),
-    strike: float = typer.Option(..., "--strike", help="Strike price."),
-    expiry: str = typer.Option(..., "--expiry", help="Years to expiry, or a date YYYY-MM-DD."),
-    rate: float = typer.Option(..., "--rate", help="Risk-free rate, continuous, decimal."),
-    vol: float = typer.Option(..., "--vol", help="Volatility, annual, decimal (0.25 = 25%)."),
-    style: Style = typer.Option(Style.american, "--style", help="american (a european option has no boundary)."),
-    div_yield: float = typer.Option(0.0, "--div-yield", help="Dividend yield, continuous."),
-    valuation_date: str = typer.Option(
-        None, "--valuation-date", help="YYYY-MM-DD; needed with a date expiry (dates on the axis)."
-    ),
-    accuracy: Accuracy = typer.Option(Accuracy.standard, "--accuracy", help="fast, standard or fine."),
-    method: Method = typer.Option(Method.direct, "--method", help="direct (Brennan-Schwartz) or psor."),
-    dividend: list[str] = typer.Option(
-        None, "--dividend",
-        help="Cash dividend EX_DATE_OR_YEARS:AMOUNT (e.g. 2027-03-15:0.42); repeat for more.",
-    ),
-    dividend_model: DividendModel = typer.Option(
-        DividendModel.spot, "--dividend-model",
-        help="spot (spot drops on the ex-date) or escrowed (spot less PV of dividends is lognormal).",
-    ),
+    kind: KindOpt,
+    spot: SpotOpt,
+    strike: StrikeOpt,
+    expiry: ExpiryOpt,
+    rate: RateOpt,
+    vol: VolOpt,
+    style: Annotated[
+        Style, typer.Option("--style", help="american (a european option has no boundary).")
+    ] = Style.american,
+    div_yield: DivYieldOpt = 0.0,
+    valuation_date: ValuationDateOpt = None,
+    accuracy: AccuracyOpt = Accuracy.standard,
+    method: MethodOpt = Method.direct,
+    dividend: DividendOpt = None,
+    dividend_model: DividendModelOpt = DividendModel.spot,
     out: Path = typer.Option(Path("boundary.png"), "--out", help="Figure to write (PNG)."),
     csv_path: Path = typer.Option(None, "--csv", help="Also write the boundary points as CSV."),
 ) -> None:
     """Draw when an American option should be exercised: critical spot against time."""
-    from .. import Market, Option
     from ..boundary import write_boundary_csv
     from ..errors import InputError
-    from ..market import parse_dividends
     from ..plots import plot_boundary, save_figure
     from ..pricing import price
 
@@ -51,12 +62,8 @@ def boundary_cmd(
     for field, path in (("out", out), ("csv", csv_path)):
         if path is not None and not path.resolve().parent.is_dir():
             raise InputError(field, str(path), "its folder does not exist")
-    option = Option(kind.value, strike, parse_expiry(expiry), style=style.value)
-    dividends = [d for text in dividend or () for d in parse_dividends(text)]
-    market = Market(
-        spot, rate, vol, div_yield=div_yield, valuation_date=valuation_date,
-        dividends=dividends, dividend_model=dividend_model.value,
-    )
+    option, market = build_contract(kind, strike, expiry, style, spot, rate, vol, div_yield,
+                                    valuation_date, dividend, dividend_model)
     res = price(option, market, accuracy=accuracy.value, method=method.value)
     if res.boundary.spot.size == 0:
         raise InputError("expiry", expiry, "is the valuation date: there is no boundary to draw")

@@ -9,7 +9,7 @@ from rich.console import Console
 from rich.table import Table
 
 from ._common import CAUTION, guard
-from .price import Accuracy
+from ._contract_options import Accuracy
 
 __all__ = ["crosscheck_cmd", "run_and_report", "show_summary"]
 

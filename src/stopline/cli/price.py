@@ -3,84 +3,63 @@
 from __future__ import annotations
 
 import json
-from enum import Enum
 from pathlib import Path
+from typing import Annotated
 
 import typer
 from rich.console import Console
 from rich.table import Table
 
-from ._common import CAUTION, guard, parse_expiry
+from ._common import CAUTION, guard
+from ._contract_options import (
+    Accuracy,
+    AccuracyOpt,
+    DividendModel,
+    DividendModelOpt,
+    DividendOpt,
+    DivYieldOpt,
+    ExpiryOpt,
+    KindOpt,
+    Method,
+    MethodOpt,
+    RateOpt,
+    SpotOpt,
+    StrikeOpt,
+    Style,
+    ValuationDateOpt,
+    VolOpt,
+    build_contract,
+)
 
-__all__ = ["price_cmd", "Kind", "Style", "Accuracy", "Method"]
-
-
-class Kind(str, Enum):
-    put = "put"
-    call = "call"
-
-
-class Style(str, Enum):
-    american = "american"
-    european = "european"
-
-
-class Accuracy(str, Enum):
-    fast = "fast"
-    standard = "standard"
-    fine = "fine"
-
-
-class Method(str, Enum):
-    direct = "direct"
-    psor = "psor"
-
-
-class DividendModel(str, Enum):
-    spot = "spot"
-    escrowed = "escrowed"
+__all__ = ["price_cmd"]
 
 
 @guard
 def price_cmd(
-    kind: Kind = typer.Option(..., "--kind", help="put or call."),
-    spot: float = typer.Option(..., "--spot", help="Price of the underlying."),
-    strike: float = typer.Option(..., "--strike", help="Strike price."),
-    expiry: str = typer.Option(..., "--expiry", help="Years to expiry, or a date YYYY-MM-DD."),
-    rate: float = typer.Option(..., "--rate", help="Risk-free rate, continuous, decimal."),
-    vol: float = typer.Option(..., "--vol", help="Volatility, annual, decimal (0.25 = 25%)."),
-    style: Style = typer.Option(Style.american, "--style", help="american or european."),
-    div_yield: float = typer.Option(0.0, "--div-yield", help="Dividend yield, continuous."),
-    valuation_date: str = typer.Option(
-        None, "--valuation-date", help="YYYY-MM-DD; needed with a date expiry."
-    ),
-    accuracy: Accuracy = typer.Option(Accuracy.standard, "--accuracy", help="fast, standard or fine."),
-    method: Method = typer.Option(Method.direct, "--method", help="direct (Brennan-Schwartz) or psor."),
+    kind: KindOpt,
+    spot: SpotOpt,
+    strike: StrikeOpt,
+    expiry: ExpiryOpt,
+    rate: RateOpt,
+    vol: VolOpt,
+    style: Annotated[Style, typer.Option("--style", help="american or european.")] = Style.american,
+    div_yield: DivYieldOpt = 0.0,
+    valuation_date: ValuationDateOpt = None,
+    accuracy: AccuracyOpt = Accuracy.standard,
+    method: MethodOpt = Method.direct,
+    dividend: DividendOpt = None,
+    dividend_model: DividendModelOpt = DividendModel.spot,
     as_json: bool = typer.Option(False, "--json", help="Print one JSON object instead of a table."),
-    dividend: list[str] = typer.Option(
-        None, "--dividend",
-        help="Cash dividend EX_DATE_OR_YEARS:AMOUNT (e.g. 2027-03-15:0.42); repeat for more.",
-    ),
-    dividend_model: DividendModel = typer.Option(
-        DividendModel.spot, "--dividend-model",
-        help="spot (spot drops on the ex-date) or escrowed (spot less PV of dividends is lognormal).",
-    ),
     plot: Path = typer.Option(
         None, "--plot", help="Also write a figure of value, payoff, delta and gamma across spot (PNG)."
     ),
 ) -> None:
     """Price one American or European option with its Greeks and error estimate."""
-    from .. import Market, Option
     from ..errors import InputError
-    from ..market import parse_dividends
     from ..pricing import price
 
-    option = Option(kind.value, strike, parse_expiry(expiry), style=style.value)
-    dividends = [d for text in dividend or () for d in parse_dividends(text)]
-    market = Market(
-        spot, rate, vol, div_yield=div_yield, valuation_date=valuation_date,
-        dividends=dividends, dividend_model=dividend_model.value,
-    )
+    option, market = build_contract(kind, strike, expiry, style, spot, rate, vol, div_yield,
+                                    valuation_date, dividend, dividend_model)
     if plot is not None and not plot.resolve().parent.is_dir():
         raise InputError("plot", str(plot), "its folder does not exist")
     res = price(option, market, accuracy=accuracy.value, method=method.value)
