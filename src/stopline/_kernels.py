@@ -141,6 +141,37 @@ def locate_boundary(v, payoff, x0, h, is_put):
 
 
 @njit(cache=True, fastmath={"contract"})
+def _begin_step(
+    k, v, ex, payoff, rhs, dt, theta, lo, di, up, df_r, df_q, shift, scale, is_put, american
+):
+    """What every solver does first in step ``k``: the far-field values, the exercise value
+    (recomputed only when the frame's shift or scale changes, so never in frame "x"), and
+    the explicit half of the theta step into ``rhs``. Returns the implicit matrix's
+    ``(sub, diag, super)`` and the far-field values ``(vl, vh)``."""
+    n = v.shape[0]
+    sk = shift[k]
+    ae = (1.0 - theta[k]) * dt[k]
+    ai = theta[k] * dt[k]
+    lk = lo[k]
+    d = di[k]
+    u = up[k]
+    vl, vh = far_values(ex[0] * sk, ex[n - 1] * sk, df_r[k], df_q[k], is_put, american)
+    vl *= scale[k]
+    vh *= scale[k]
+    if american and (k == 0 or sk != shift[k - 1] or scale[k] != scale[k - 1]):
+        obstacle(ex, sk, is_put, payoff)
+        if scale[k] != 1.0:
+            for j in range(n):
+                payoff[j] *= scale[k]
+    el = ae * lk
+    ed = 1.0 + ae * d
+    eu = ae * u
+    for j in range(1, n - 1):
+        rhs[j] = el * v[j - 1] + ed * v[j] + eu * v[j + 1]
+    return -ai * lk, 1.0 - ai * d, -ai * u, vl, vh
+
+
+@njit(cache=True, fastmath={"contract"})
 def march_direct(
     v, ex, x0, h, dt, theta, lo, di, up, df_r, df_q, shift, scale, is_put, american, bnd
 ):
@@ -188,29 +219,10 @@ def march_direct(
     aw = np.empty(n)  # off-diagonal x pivot, the substitution's coefficient
     payoff = np.empty(n)
     for k in range(dt.shape[0]):
-        sk = shift[k]
-        ae = (1.0 - theta[k]) * dt[k]
-        ai = theta[k] * dt[k]
-        lk = lo[k]
-        d = di[k]
-        u = up[k]
-        vl, vh = far_values(ex[0] * sk, ex[n - 1] * sk, df_r[k], df_q[k], is_put, american)
-        vl *= scale[k]
-        vh *= scale[k]
-        # the exercise value only changes with the frame's shift and scale (never in frame x)
-        if american and (k == 0 or sk != shift[k - 1] or scale[k] != scale[k - 1]):
-            obstacle(ex, sk, is_put, payoff)
-            if scale[k] != 1.0:
-                for j in range(n):
-                    payoff[j] *= scale[k]
-        el = ae * lk
-        ed = 1.0 + ae * d
-        eu = ae * u
-        for j in range(1, n - 1):
-            rhs[j] = el * v[j - 1] + ed * v[j] + eu * v[j + 1]
-        a = -ai * lk
-        b = 1.0 - ai * d
-        c = -ai * u
+        a, b, c, vl, vh = _begin_step(
+            k, v, ex, payoff, rhs, dt, theta, lo, di, up, df_r, df_q, shift, scale, is_put,
+            american,
+        )
         if is_put:
             rhs[n - 2] -= c * vh
             # eliminate the upper diagonal from the top: v_j = (rhs_j - a v_{j-1}) w_j
@@ -299,7 +311,7 @@ def march_direct(
                     v[j] = rhs[j] - aw[j] * v[j + 1]
             v[0] = vl
         if american:
-            bnd[k] = locate_boundary(v, payoff, x0, h, is_put) + math.log(sk)
+            bnd[k] = locate_boundary(v, payoff, x0, h, is_put) + math.log(shift[k])
         else:
             bnd[k] = math.nan
 
@@ -373,28 +385,10 @@ def march_psor(
     payoff = np.empty(n)
     failed = -1
     for k in range(dt.shape[0]):
-        sk = shift[k]
-        ae = (1.0 - theta[k]) * dt[k]
-        ai = theta[k] * dt[k]
-        lk = lo[k]
-        d = di[k]
-        u = up[k]
-        vl, vh = far_values(ex[0] * sk, ex[n - 1] * sk, df_r[k], df_q[k], is_put, american)
-        vl *= scale[k]
-        vh *= scale[k]
-        if american:
-            obstacle(ex, sk, is_put, payoff)
-            if scale[k] != 1.0:
-                for j in range(n):
-                    payoff[j] *= scale[k]
-        el = ae * lk
-        ed = 1.0 + ae * d
-        eu = ae * u
-        for j in range(1, n - 1):
-            rhs[j] = el * v[j - 1] + ed * v[j] + eu * v[j + 1]
-        a = -ai * lk
-        b = 1.0 - ai * d
-        c = -ai * u
+        a, b, c, vl, vh = _begin_step(
+            k, v, ex, payoff, rhs, dt, theta, lo, di, up, df_r, df_q, shift, scale, is_put,
+            american,
+        )
         v[0] = vl
         v[n - 1] = vh
         om = omega
@@ -426,7 +420,7 @@ def march_psor(
                 break
         iters[k] = it
         if american:
-            bnd[k] = locate_boundary(v, payoff, x0, h, is_put) + math.log(sk)
+            bnd[k] = locate_boundary(v, payoff, x0, h, is_put) + math.log(shift[k])
         else:
             bnd[k] = math.nan
     return failed
