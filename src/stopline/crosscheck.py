@@ -553,7 +553,7 @@ def check_row(raw: Mapping[str, object], settings: CheckSettings | None = None) 
     q = line.quote
     moneyness = line.option.strike / line.market.spot
     try:
-        res = price(line.option, line.market, accuracy=settings.accuracy)
+        res = price(line.option, line.market, accuracy=settings.accuracy, greeks="grid")
         vega = _vega(line, res, settings.accuracy)
     except (StoplineError, ValueError) as exc:
         return RowCheck(note=f"pricing failed: {exc}", quote=q, moneyness=moneyness)
