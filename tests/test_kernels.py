@@ -249,3 +249,29 @@ def test_fornberg_weights_match_their_twin_and_differentiate_cubics(
         assert w[0] @ f == pytest.approx(z**3 - 2 * z, abs=1e-9)
         assert w[1] @ f == pytest.approx(3 * z**2 - 2, abs=1e-8)
         assert w[2] @ f == pytest.approx(6 * z, abs=1e-7)
+
+
+@pytest.mark.parametrize("is_put", [True, False])
+def test_tangents_equal_finite_differences_of_the_same_march(is_put: bool) -> None:
+    # common practice (forward-mode differentiation): for a European option the tangent march
+    # is the exact derivative of the discrete solution, so it matches a central difference of
+    # the same kernel on the same grid to the difference's own O(bump^2) error
+    import dataclasses
+
+    from stopline.solve import PDEProblem, solve, solve_with_tangents
+
+    t, r, q, vol = 0.75, 0.04, 0.01, 0.3
+    p = PDEProblem(is_put, False, t, r, q, vol, math.log(0.97))
+    sd = vol * math.sqrt(t)
+    space = build_space_grid(p.x_spot, sd, (r - q - vol * vol / 2) * t, width_sd=5.0, points_per_sd=8)
+    time = build_time_grid(t, 24)
+    sol, tan = solve_with_tangents(p, space, time)
+    from stopline.exercise import DirectSweep
+
+    assert np.array_equal(sol.values, solve(p, space, time, DirectSweep()).values)
+    for i, field in enumerate(("vol", "rate")):
+        d = 1e-5
+        up = solve(dataclasses.replace(p, **{field: getattr(p, field) + d}), space, time, DirectSweep())
+        dn = solve(dataclasses.replace(p, **{field: getattr(p, field) - d}), space, time, DirectSweep())
+        fd = (up.values - dn.values) / (2 * d)
+        np.testing.assert_allclose(tan[i], fd, rtol=0, atol=1e-6)

@@ -30,6 +30,7 @@ __all__ = [
     "far_value",
     "far_values",
     "march_direct",
+    "march_direct_tangents",
     "march_psor",
     "locate_boundary",
     "thomas_repeat",
@@ -171,11 +172,27 @@ def _begin_step(
     return -ai * lk, 1.0 - ai * d, -ai * u, vl, vh
 
 
-@njit(cache=True, fastmath={"contract"})
+@njit(cache=True)
 def march_direct(
     v, ex, x0, h, dt, theta, lo, di, up, df_r, df_q, shift, scale, is_put, american, bnd
 ):
     """March ``v`` through all steps with the Brennan-Schwartz direct sweep.
+
+    :func:`march_direct_tangents` without sensitivities; see it for the arguments.
+    """
+    march_direct_tangents(
+        v, ex, x0, h, dt, theta, lo, di, up, df_r, df_q, shift, scale, is_put, american, bnd,
+        np.empty((0, v.shape[0])), np.empty((0, 3, 0)), np.empty((0, 2, 0)),
+    )
+
+
+@njit(cache=True, fastmath={"contract"})
+def march_direct_tangents(
+    v, ex, x0, h, dt, theta, lo, di, up, df_r, df_q, shift, scale, is_put, american, bnd,
+    tan, dco, dfar,
+):
+    """March ``v`` through all steps with the Brennan-Schwartz direct sweep, and optionally
+    the derivatives of ``v`` with respect to parameters of the operator (tangent-linear).
 
     Parameters
     ----------
@@ -196,9 +213,24 @@ def march_direct(
     bnd : ndarray, shape (n_steps,)
         Written: the critical log-moneyness ``ln(S*/K)`` after each step (NaN if no exercise
         region).
+    tan : ndarray, shape (n_par, n)
+        Derivatives of ``v`` with respect to each parameter: at the first level on entry (zeros
+        for parameters the payoff does not depend on), at the last level on return.
+        ``n_par = 0`` marches the values only.
+    dco : ndarray, shape (n_par, 3, n_steps)
+        Derivatives of ``(lo, di, up)`` with respect to each parameter, per step.
+    dfar : ndarray, shape (n_par, 2, n_steps)
+        Derivatives of the low and high far-field values, per step (scaled like ``v``).
 
     Notes
     -----
+    Tangents. Differentiating one step of the scheme gives the same matrix applied to the
+    derivative, ``B dv_new = E dv_old + dt (theta dL v_new + (1 - theta) dL v_old)``, except
+    on exercised nodes, where the value is the payoff and its derivative is zero; the sweep's
+    pivots are reused, so a parameter costs a right-hand side, an elimination and a
+    substitution per step, without a division. This is the exact derivative of the discrete
+    solution, so no bump size enters (forward-mode differentiation of the algorithm).
+
     A put's exercise region is one interval touching the low end, so eliminating from the
     high end and substituting upward while taking ``max(value, payoff)`` solves the linear
     complementarity problem exactly (Brennan and Schwartz, 1977); a call is the mirror image.
@@ -218,11 +250,17 @@ def march_direct(
     w = np.empty(n)  # reciprocal pivots
     aw = np.empty(n)  # off-diagonal x pivot, the substitution's coefficient
     payoff = np.empty(n)
+    n_par = tan.shape[0]
+    v_old = np.empty(n if n_par else 0)
+    trhs = np.empty(n if n_par else 0)
     for k in range(dt.shape[0]):
+        if n_par:
+            v_old[:] = v
         a, b, c, vl, vh = _begin_step(
             k, v, ex, payoff, rhs, dt, theta, lo, di, up, df_r, df_q, shift, scale, is_put,
             american,
         )
+        j_fixed = 0
         if is_put:
             rhs[n - 2] -= c * vh
             # eliminate the upper diagonal from the top: v_j = (rhs_j - a v_{j-1}) w_j
@@ -242,6 +280,7 @@ def march_direct(
                     break
             # the pivots have reached their fixed point: the rest of the sweep is division-free
             wc = w[j + 1]
+            j_fixed = j
             awc = a * wc
             f = c * wc
             # two nodes at a time: r_{i-1} = (rhs_{i-1} - f rhs_i) + f^2 r_{i+1} depends on the
@@ -286,6 +325,7 @@ def march_direct(
                 if w[j - 1] == w[j - 2]:
                     break
             wc = w[j - 1]
+            j_fixed = j
             awc = c * wc
             f = a * wc
             f2 = f * f
@@ -310,10 +350,77 @@ def march_direct(
                 for j in range(n - 2, 0, -1):
                     v[j] = rhs[j] - aw[j] * v[j + 1]
             v[0] = vl
+        if n_par:
+            # pivots past the fixed point all equal it
+            if is_put:
+                for i in range(1, j_fixed + 1):
+                    w[i] = w[j_fixed + 1]
+            else:
+                for i in range(j_fixed, n - 1):
+                    w[i] = w[j_fixed - 1]
+            for p in range(n_par):
+                _tangent_step(
+                    k, p, tan, trhs, v_old, v, payoff, w, a, c, dt, theta, lo, di, up, dco, dfar,
+                    is_put, american,
+                )
         if american:
             bnd[k] = locate_boundary(v, payoff, x0, h, is_put) + math.log(shift[k])
         else:
             bnd[k] = math.nan
+
+
+@njit(cache=True, fastmath={"contract"})
+def _tangent_step(
+    k, p, tan, trhs, v_old, v, payoff, w, a, c, dt, theta, lo, di, up, dco, dfar, is_put,
+    american,
+):
+    """Advance the derivative ``tan[p]`` through step ``k`` (see :func:`march_direct_tangents`)."""
+    n = v.shape[0]
+    t = tan[p]
+    ae = (1.0 - theta[k]) * dt[k]
+    ai = theta[k] * dt[k]
+    el = ae * lo[k]
+    ed = 1.0 + ae * di[k]
+    eu = ae * up[k]
+    dl = dco[p, 0, k]
+    dd = dco[p, 1, k]
+    du = dco[p, 2, k]
+    for j in range(1, n - 1):
+        trhs[j] = (
+            el * t[j - 1] + ed * t[j] + eu * t[j + 1]
+            + ae * (dl * v_old[j - 1] + dd * v_old[j] + du * v_old[j + 1])
+            + ai * (dl * v[j - 1] + dd * v[j] + du * v[j + 1])
+        )
+    tl = dfar[p, 0, k]
+    th = dfar[p, 1, k]
+    if is_put:
+        trhs[n - 2] -= c * th
+        r = trhs[n - 2]
+        trhs[n - 2] = r * w[n - 2]
+        for j in range(n - 3, 0, -1):
+            r = trhs[j] - c * w[j + 1] * r
+            trhs[j] = r * w[j]
+        t[0] = tl
+        for j in range(1, n - 1):
+            if american and v[j] <= payoff[j]:
+                t[j] = 0.0
+            else:
+                t[j] = trhs[j] - a * w[j] * t[j - 1]
+        t[n - 1] = th
+    else:
+        trhs[1] -= a * tl
+        r = trhs[1]
+        trhs[1] = r * w[1]
+        for j in range(2, n - 1):
+            r = trhs[j] - a * w[j - 1] * r
+            trhs[j] = r * w[j]
+        t[n - 1] = th
+        for j in range(n - 2, 0, -1):
+            if american and v[j] <= payoff[j]:
+                t[j] = 0.0
+            else:
+                t[j] = trhs[j] - c * w[j] * t[j + 1]
+        t[0] = tl
 
 
 @njit(cache=True, fastmath={"contract"})

@@ -194,6 +194,61 @@ def solve(
     return _solve_with_dividends(problem, space, time, plan, method, v.copy(), v)
 
 
+def tangents_available(problem: PDEProblem, space: SpaceGrid, method: ExerciseMethod) -> bool:
+    """Whether :func:`solve_with_tangents` applies: flat data, no cash dividends, frame "x",
+    the direct sweep."""
+    return (
+        problem.curves is None and not problem.has_events and space.frame == "x"
+        and method.name == "direct"
+    )
+
+
+def solve_with_tangents(
+    problem: PDEProblem, space: SpaceGrid, time: TimeGrid
+) -> tuple[GridSolution, FloatArray]:
+    """:func:`solve` with the direct sweep, plus the exact derivatives of the values with
+    respect to the volatility and the rate (tangent-linear march, no bump).
+
+    Returns
+    -------
+    GridSolution
+        As :func:`solve` (identical values).
+    ndarray, shape (2, space.n)
+        d(value / strike)/d vol and d(value / strike)/d rate on every node at valuation.
+    """
+    plan = plan_steps(time, space.h, *problem.coefficients, space.frame)
+    ex = np.exp(space.x)
+    v = payoff_on(space, problem.is_put, ex=ex)
+    n_steps = plan.dt.shape[0]
+    h, sig = space.h, problem.vol
+    dco = np.empty((2, 3, n_steps))
+    # d/d vol of lo = s^2/(2h^2) - mu/(2h), di = -s^2/h^2 - r, up = s^2/(2h^2) + mu/(2h),
+    # with mu = r - q - s^2/2; and d/d rate
+    dco[0, 0, :] = sig / (h * h) + 0.5 * sig / h
+    dco[0, 1, :] = -2.0 * sig / (h * h)
+    dco[0, 2, :] = sig / (h * h) - 0.5 * sig / h
+    dco[1, 0, :] = -0.5 / h
+    dco[1, 1, :] = -1.0
+    dco[1, 2, :] = 0.5 / h
+    # far-field values: the discounted forward payoff depends on the rate through df_r
+    dfar = np.zeros((2, 2, n_steps))
+    for end, s_end in ((0, ex[0]), (1, ex[-1])):
+        fwd = (plan.df_r - s_end * plan.df_q) if problem.is_put else (s_end * plan.df_q - plan.df_r)
+        intrinsic = max(1.0 - s_end, 0.0) if problem.is_put else max(s_end - 1.0, 0.0)
+        active = (fwd > 0.0) & ~(problem.american & (intrinsic > fwd))
+        sign = -1.0 if problem.is_put else 1.0
+        dfar[1, end, :] = np.where(active, sign * plan.tau * plan.df_r, 0.0)
+    tan = np.zeros((2, space.n))
+    bnd = np.empty(n_steps)
+    _kernels.march_direct_tangents(
+        v, ex, space.x_min, space.h, plan.dt, plan.theta, plan.lo, plan.di, plan.up,
+        plan.df_r, plan.df_q, plan.shift, plan.scale, problem.is_put, problem.american, bnd,
+        tan, dco, dfar,
+    )
+    payoff = payoff_on(space, problem.is_put, float(plan.shift[-1]), ex=ex)
+    return GridSolution(space, time, v, payoff, plan.drift, MarchReport(bnd)), tan
+
+
 def _solve_with_dividends(
     problem: PDEProblem, space: SpaceGrid, time: TimeGrid, plan: StepPlan,
     method: ExerciseMethod, payoff: FloatArray, v: FloatArray,
