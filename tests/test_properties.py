@@ -96,3 +96,32 @@ def test_put_call_symmetry(m, t, v, r, q) -> None:
     c = price(Option("call", k, t), Market(s, r, v, q), greeks="grid")
     p = price(Option("put", s, t), Market(k, q, v, r), greeks="grid")
     assert abs(c.price - p.price) <= _slack(max(k, s), c, p)
+
+
+@settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(
+    kinds, st.floats(0.5, 2.0), st.floats(0.05, 5.0), st.floats(0.05, 1.5), rates, yields,
+    st.lists(st.tuples(st.floats(0.0, 1.0), st.floats(0.001, 0.15)), min_size=1, max_size=3),
+    st.sampled_from(["spot", "escrowed"]),
+)
+def test_bounds_with_cash_dividends(kind, m, t, v, r, q, divs, model) -> None:
+    # Merton (1973) bounds hold with cash dividends too: American >= European >= 0,
+    # American >= intrinsic, a call <= spot; the schedule's times are fractions of the life
+    # and its amounts fractions of the spot
+    k = 100.0
+    s = k * m
+    schedule = [(max(f * t, 1e-3), a * s) for f, a in divs]
+    if sum(a for _, a in schedule) >= 0.9 * s:
+        return
+    mkt = Market(s, r, v, q, dividends=schedule, dividend_model=model)
+    am = price(Option(kind, k, t), mkt, greeks="grid")
+    eu = price(Option(kind, k, t, style="european"), mkt, greeks="grid")
+    for res in (am, eu):
+        assert all(math.isfinite(x) for x in (res.price, res.delta, res.gamma, res.theta))
+    slack = _slack(k, am, eu)
+    intrinsic = max(k - s, 0.0) if kind == "put" else max(s - k, 0.0)
+    assert eu.price >= -slack
+    assert am.price >= eu.price - slack
+    assert am.price >= intrinsic - 1e-9 * k
+    if kind == "call":
+        assert am.price <= s + slack
