@@ -34,6 +34,7 @@ __all__ = [
     "march_psor",
     "locate_boundary",
     "thomas_repeat",
+    "pava_increasing",
     "thomas_repeat_fixed_point",
     "fornberg_weights",
     "dividend_jump",
@@ -768,3 +769,34 @@ def fornberg_weights(z, x, m):
             c[0, j] = c4 * c[0, j] / c3
         c1 = c2
     return c
+
+
+@njit(cache=True)
+def pava_increasing(y, out):
+    """Least-squares non-decreasing fit of ``y`` by pool-adjacent-violators, into ``out``.
+
+    Blocks are merged while a block's mean exceeds the next one's; each block's points take
+    its mean, and points in blocks of one keep their exact value.
+
+    References
+    ----------
+    Ayer, M. et al. (1955), Ann. Math. Statist. 26(4).
+    """
+    n = y.shape[0]
+    means = np.empty(n)
+    sizes = np.empty(n, dtype=np.int64)
+    m = 0
+    for i in range(n):
+        means[m] = y[i]
+        sizes[m] = 1
+        m += 1
+        while m > 1 and means[m - 2] > means[m - 1]:
+            size = sizes[m - 2] + sizes[m - 1]
+            means[m - 2] = (means[m - 2] * sizes[m - 2] + means[m - 1] * sizes[m - 1]) / size
+            sizes[m - 2] = size
+            m -= 1
+    i = 0
+    for b in range(m):
+        for _ in range(sizes[b]):
+            out[i] = y[i] if sizes[b] == 1 else means[b]
+            i += 1

@@ -27,6 +27,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
+from . import _kernels
 from ._atomic import atomic_write
 from ._types import FloatArray
 
@@ -60,20 +61,8 @@ def monotone_fit(values: FloatArray, *, decreasing: bool) -> FloatArray:
     y = sign * y
     if np.all(np.diff(y) >= 0.0):
         return out
-    means: list[float] = []
-    sizes: list[int] = []
-    for v in y:
-        means.append(float(v))
-        sizes.append(1)
-        while len(means) > 1 and means[-2] > means[-1]:
-            n = sizes[-2] + sizes[-1]
-            m = (means[-2] * sizes[-2] + means[-1] * sizes[-1]) / n
-            means[-2:] = [m]
-            sizes[-2:] = [n]
-    fit = np.repeat(np.array(means), np.array(sizes))
-    # pooled stretches get the mean; untouched points keep their exact values
-    same = np.isclose(fit, y, rtol=0.0, atol=0.0)
-    fit[same] = y[same]
+    fit = np.empty_like(y)
+    _kernels.pava_increasing(y, fit)  # pooled stretches get the mean, others stay exact
     out[ok] = sign * fit
     return out
 

@@ -63,6 +63,16 @@ class DividendSchedule:
     warnings: tuple[str, ...] = ()
 
 
+def _frozen_empty() -> FloatArray:
+    out = np.empty(0)
+    out.flags.writeable = False
+    return out
+
+
+#: The schedule of a market without cash dividends (shared; its arrays are read-only).
+_NO_DIVIDENDS = DividendSchedule(_frozen_empty(), _frozen_empty())
+
+
 def dividend_schedule(
     dividends: tuple[tuple[_dt.date | float, float], ...],
     expiry: float,
@@ -88,6 +98,8 @@ def dividend_schedule(
         ``dividends`` if an ex-date lies before the valuation date; ``valuation_date`` if an
         ex-date is a date and there is none.
     """
+    if not dividends:
+        return _NO_DIVIDENDS
     times: list[float] = []
     amounts: list[float] = []
     warnings: list[str] = []
