@@ -275,3 +275,14 @@ def test_tangents_equal_finite_differences_of_the_same_march(is_put: bool) -> No
         dn = solve(dataclasses.replace(p, **{field: getattr(p, field) - d}), space, time, DirectSweep())
         fd = (up.values - dn.values) / (2 * d)
         np.testing.assert_allclose(tan[i], fd, rtol=0, atol=1e-6)
+
+
+def test_pava_increasing_matches_scipy(rng: np.random.Generator) -> None:
+    # Source: scipy.optimize.isotonic_regression (pool-adjacent-violators, Ayer et al. 1955)
+    from scipy.optimize import isotonic_regression
+
+    for n in (1, 2, 7, 40):
+        y = np.cumsum(rng.normal(0.1, 1.0, n))
+        out = np.empty(n)
+        _kernels.pava_increasing(y, out)
+        np.testing.assert_allclose(out, isotonic_regression(y).x, rtol=0, atol=1e-12)
