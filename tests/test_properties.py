@@ -30,6 +30,19 @@ def _slack(k: float, *results) -> float:
     return 1e-5 * k + sum(r.error_estimate for r in results)
 
 
+def _check_common_bounds(kind: str, k: float, s: float, am, eu) -> float:  # noqa: ANN001
+    """Finite answers, European >= 0, American >= European and >= intrinsic; returns the
+    slack the comparisons allowed."""
+    for res in (am, eu):
+        assert all(math.isfinite(x) for x in (res.price, res.delta, res.gamma, res.theta))
+    slack = _slack(k, am, eu)
+    intrinsic = max(k - s, 0.0) if kind == "put" else max(s - k, 0.0)
+    assert eu.price >= -slack
+    assert am.price >= eu.price - slack
+    assert am.price >= intrinsic - 1e-9 * k
+    return slack
+
+
 @SETTINGS
 @given(kinds, strikes, moneyness, expiries, vols, rates, yields)
 @example("put", 100.0, 1.0, 1 / 365, 0.01, 0.25, 0.0)
@@ -44,13 +57,7 @@ def test_bounds_and_finiteness(kind, k, m, t, v, r, q) -> None:
     # "standard": the accuracy promised everywhere (1e-5 x strike) is the standard preset's
     am = price(Option(kind, k, t), mkt, greeks="grid")
     eu = price(Option(kind, k, t, style="european"), mkt, greeks="grid")
-    for res in (am, eu):
-        assert all(math.isfinite(x) for x in (res.price, res.delta, res.gamma, res.theta))
-    slack = _slack(k, am, eu)
-    intrinsic = max(k - s, 0.0) if kind == "put" else max(s - k, 0.0)
-    assert eu.price >= -slack
-    assert am.price >= eu.price - slack
-    assert am.price >= intrinsic - 1e-9 * k
+    slack = _check_common_bounds(kind, k, s, am, eu)
     # a put is worth at most the strike, or its value paid at expiry when rates are negative;
     # a call at most the spot, or its value received now when yields are negative
     cap = k * max(1.0, math.exp(-r * t)) if kind == "put" else s * max(1.0, math.exp(-q * t))
@@ -116,12 +123,6 @@ def test_bounds_with_cash_dividends(kind, m, t, v, r, q, divs, model) -> None:
     mkt = Market(s, r, v, q, dividends=schedule, dividend_model=model)
     am = price(Option(kind, k, t), mkt, greeks="grid")
     eu = price(Option(kind, k, t, style="european"), mkt, greeks="grid")
-    for res in (am, eu):
-        assert all(math.isfinite(x) for x in (res.price, res.delta, res.gamma, res.theta))
-    slack = _slack(k, am, eu)
-    intrinsic = max(k - s, 0.0) if kind == "put" else max(s - k, 0.0)
-    assert eu.price >= -slack
-    assert am.price >= eu.price - slack
-    assert am.price >= intrinsic - 1e-9 * k
+    slack = _check_common_bounds(kind, k, s, am, eu)
     if kind == "call":
         assert am.price <= s + slack
