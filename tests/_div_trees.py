@@ -22,36 +22,39 @@ import numpy as np
 from scipy.stats import norm
 
 
-def _crr(s0: float, t: float, r: float, vol: float, n: int) -> tuple[float, float, float]:
+def _crr(s0: float, t: float, r: float, vol: float, n: int,
+         q: float = 0.0) -> tuple[float, float, float]:
     dt = t / n
     u = math.exp(vol * math.sqrt(dt))
-    p = (math.exp(r * dt) - 1 / u) / (u - 1 / u)
+    p = (math.exp((r - q) * dt) - 1 / u) / (u - 1 / u)
     return u, p, math.exp(-r * dt)
 
 
 def _bs_last_step(sign: float, spot: np.ndarray, k: float, dt: float, r: float,
-                  vol: float) -> np.ndarray:
+                  vol: float, q: float = 0.0) -> np.ndarray:
     """European value one step before expiry (Broadie and Detemple 1996, BBS tree)."""
     sq = vol * math.sqrt(dt)
-    d1 = (np.log(spot / k) + (r + 0.5 * vol * vol) * dt) / sq
+    d1 = (np.log(spot / k) + (r - q + 0.5 * vol * vol) * dt) / sq
     d2 = d1 - sq
-    return sign * (spot * norm.cdf(sign * d1) - k * math.exp(-r * dt) * norm.cdf(sign * d2))
+    return sign * (spot * math.exp(-q * dt) * norm.cdf(sign * d1)
+                   - k * math.exp(-r * dt) * norm.cdf(sign * d2))
 
 
 def escrowed_tree(kind: str, s: float, k: float, t: float, r: float, vol: float,
-                  t_d: float, d: float, n: int, bbs: bool = True) -> float:
+                  t_d: float, d: float, n: int, bbs: bool = True, q: float = 0.0) -> float:
     """American option, one dividend, escrowed model (Hull's known-dividend tree).
 
-    ``bbs=False`` gives the plain CRR tree of the textbook example.
+    ``bbs=False`` gives the plain CRR tree of the textbook example; ``q`` is a continuous
+    yield paid on top of the cash dividend (``S*`` then grows at ``r - q``).
     """
     sign = 1.0 if kind == "call" else -1.0
     s_star = s - d * math.exp(-r * t_d)
-    u, p, disc = _crr(s_star, t, r, vol, n)
+    u, p, disc = _crr(s_star, t, r, vol, n, q)
     dt = t / n
     for step in range(n - 1, -1, -1):
         j = np.arange(step + 1)
         if step == n - 1 and bbs:
-            v = _bs_last_step(sign, s_star * u ** (2.0 * j - step), k, dt, r, vol)
+            v = _bs_last_step(sign, s_star * u ** (2.0 * j - step), k, dt, r, vol, q)
         elif step == n - 1:
             v = np.maximum(sign * (s_star * u ** (2.0 * np.arange(n + 1) - n) - k), 0.0)
             v = disc * (p * v[1:] + (1 - p) * v[:-1])

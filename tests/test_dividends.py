@@ -13,6 +13,7 @@ from stopline.dividends import dividend_schedule, present_value
 from stopline.exercise import DirectSweep
 from stopline.greeks import read_at_spot
 from stopline.grid import SegmentedTimeGrid, build_space_grid
+from stopline.profile import value_profile
 from stopline.solve import problem_from_market, solve, time_grid_for
 
 from ._bsm import bsm
@@ -146,6 +147,27 @@ def test_hull_dividend_tree_example_and_converged_escrowed_put() -> None:
                 Market(52.0, 0.10, 0.40, dividends=[(3.5 / 12, 2.06)], dividend_model="escrowed"),
                 accuracy="fine")
     assert res.price == pytest.approx(tree, abs=5e-5)
+
+
+@pytest.mark.parametrize("q", [0.10, 0.25])
+def test_escrowed_call_exercised_at_once_reads_intrinsic(q: float) -> None:
+    # Source: a CRR tree of the escrowed model (Hull, numerical procedures chapter; the test's
+    # own tests/_div_trees.py, here with a yield on top). Deep in the money, a large dividend
+    # just ahead and a high yield: the tree exercises at once, so the price is the intrinsic
+    # value and delta is 1. (Found by the property tests: the critical spot, reported in spot
+    # terms, was compared with the grid's spot-less-PV coordinate and the quintic read
+    # extrapolated the held region to 2390 for a 50 intrinsic.)
+    s, k, t, td, d = 150.0, 100.0, 1.0, 0.001, 37.5
+    assert escrowed_tree("call", s, k, t, 0.0, 1.0, td, d, 2000, q=q) == pytest.approx(s - k)
+    mkt = Market(s, 0.0, 1.0, q, dividends=[(td, d)], dividend_model="escrowed")
+    for acc in ("fast", "standard", "fine"):
+        res = price(Option("call", k, t), mkt, accuracy=acc)
+        assert res.price == pytest.approx(s - k, abs=1e-12)
+        assert res.delta == 1.0 and res.gamma == 0.0
+    prof = value_profile(Option("call", k, t), mkt, accuracy="fast")
+    near = (prof.spot > 130.0) & (prof.spot < 400.0)
+    assert prof.exercised[near].all()
+    assert np.allclose(prof.value[near], prof.spot[near] - k, atol=1e-9 * k)
 
 
 def test_escrowed_pv_reaching_spot_is_an_error() -> None:

@@ -111,6 +111,8 @@ def test_put_call_symmetry(m, t, v, r, q) -> None:
     st.lists(st.tuples(st.floats(0.0, 1.0), st.floats(0.001, 0.15)), min_size=1, max_size=3),
     st.sampled_from(["spot", "escrowed"]),
 )
+# found: escrowed call exercised at once read as held (boundary and nodes in different frames)
+@example("call", 1.5, 1.0, 1.0, 0.0, 0.25, [(0.0, 0.125), (0.0, 0.125)], "escrowed")
 def test_bounds_with_cash_dividends(kind, m, t, v, r, q, divs, model) -> None:
     # Merton (1973) bounds hold with cash dividends too: American >= European >= 0,
     # American >= intrinsic, a call <= spot; the schedule's times are fractions of the life

@@ -121,7 +121,7 @@ def fd_weights(z: float, x: FloatArray, m: int) -> FloatArray:
 def read_at_spot(
     values: FloatArray, payoff: FloatArray, x_min: float, h: float, x_spot: float,
     strike: float, american: bool, x_boundary: float = math.nan,
-    is_put: bool | None = None,
+    is_put: bool | None = None, pv: float = 0.0,
 ) -> GridReadout:
     """Quintic read-off of value, delta and gamma at ``x_spot``.
 
@@ -143,6 +143,10 @@ def read_at_spot(
     is_put : bool, optional
         The option's kind; when not given it is inferred from where the payoff is positive,
         which fails on a grid that lies wholly in the money.
+    pv : float, optional
+        Escrowed dividends: the nodes are ``(spot - PV(D)) / K`` and ``pv = PV(D) / K``, so the
+        exercise value at ``x`` is that of the spot ``K (e^x + pv)``; ``x_boundary`` is then
+        given in the same frame as the nodes.
     """
     n = values.shape[0]
     p = min(STENCIL, n)
@@ -151,9 +155,9 @@ def read_at_spot(
     if american:
         # a put's payoff is positive at the low end
         put_side = bool(is_put) if is_put is not None else payoff[0] > 0.0
-        e = math.exp(x_spot)
+        e = math.exp(x_spot) + pv
         intrinsic = max(1.0 - e, 0.0) if put_side else max(e - 1.0, 0.0)
-        if math.isfinite(x_boundary):
+        if not math.isnan(x_boundary):
             inside = x_spot <= x_boundary if put_side else x_spot >= x_boundary
         else:
             inside = all(values[i] <= payoff[i] and payoff[i] > 0 for i in range(j0, j0 + p))

@@ -529,10 +529,15 @@ def price(
 
 
 def _read(sol: GridSolution, problem: PDEProblem, strike: float) -> GridReadout:
+    x_boundary = float(sol.report.boundary_x[-1]) if problem.american else math.nan
+    pv = problem.escrow_pv if problem.escrowed else 0.0
+    if pv and math.isfinite(x_boundary):
+        # the march reports the critical spot itself; the grid's nodes are spot less PV(D)
+        s_star = math.exp(x_boundary) - pv
+        x_boundary = math.log(s_star) if s_star > 0.0 else -math.inf
     return read_at_spot(
         sol.values, sol.payoff, sol.x_min, sol.space.h, problem.x_spot, strike,
-        problem.american, float(sol.report.boundary_x[-1]) if problem.american else math.nan,
-        problem.is_put,
+        problem.american, x_boundary, problem.is_put, pv=pv,
     )
 
 

@@ -131,7 +131,9 @@ def value_profile(
     # exercised: beyond the critical spot located on the finer grid (as price() decides)
     x_star = float(fine.report.boundary_x[-1]) if option.is_american else math.nan
     if math.isfinite(x_star):
-        exercised = (x <= x_star) if option.is_put else (x >= x_star)
+        # the march reports the critical spot itself (not the node's spot less PV(D))
+        xs = np.log(s / k)
+        exercised = (xs <= x_star) if option.is_put else (xs >= x_star)
         exercised &= pc > 0.0
     else:
         exercised = np.zeros(x.shape, dtype=bool)
