@@ -37,6 +37,7 @@ from .solve import (
     theta_at_valuation,
     time_grid_for,
 )
+from .symmetry import solve_swapped, swapped_problem, use_symmetry
 
 __all__ = [
     "AccuracyPreset",
@@ -438,7 +439,11 @@ def price(
                 "or term structures",
             )
         return _zero_vol_limit(option, market, solver, t)
-    space_c, time_c, acc_name = _resolve_grid(problem, accuracy, grid)
+    # a call whose grid would span astronomically large values is solved as the symmetric put
+    swapped = use_symmetry(problem)
+    grid_problem = swapped_problem(problem) if swapped else problem
+    solve_on = solve_swapped if swapped else solve
+    space_c, time_c, acc_name = _resolve_grid(grid_problem, accuracy, grid)
     if space_c.n >= MAX_COARSE_NODES:
         warnings.append(
             f"the grid reached its cap of {MAX_COARSE_NODES} coarse nodes; spacing is wider than "
@@ -453,13 +458,14 @@ def price(
     time_f = time_c.refined()
     # American vega and rho: exact derivatives of the discrete solution ride along the march
     # where the tangent-linear sweep applies (flat data, no cash dividends, direct sweep)
-    tangents = greeks == "full" and american and tangents_available(problem, space_c, solver)
+    tangents = (greeks == "full" and american and not swapped
+                and tangents_available(problem, space_c, solver))
     if tangents:
         coarse, tan_c = solve_with_tangents(problem, space_c, time_c)
         fine, tan_f = solve_with_tangents(problem, space_f, time_f)
     else:
-        coarse = solve(problem, space_c, time_c, solver)
-        fine = solve(problem, space_f, time_f, solver)
+        coarse = solve_on(problem, space_c, time_c, solver)
+        fine = solve_on(problem, space_f, time_f, solver)
     rc = _read(coarse, problem, k)
     rf = _read(fine, problem, k)
     value = rf.value + (rf.value - rc.value) / 3.0
@@ -491,7 +497,7 @@ def price(
         bumped = []
         for changes in ({"vol": dv}, {"vol": -dv}, {"rate": dr}, {"rate": -dr}):
             p = problem_from_market(option, bumped_market(market, **changes), t)
-            lo, hi = (solve(p, sg, tg, solver) for sg, tg in pair)
+            lo, hi = (solve_on(p, sg, tg, solver) for sg, tg in pair)
             psor += [lo.report, hi.report]
             v_lo, v_hi = _read(lo, p, k).value, _read(hi, p, k).value
             bumped.append(v_hi + (v_hi - v_lo) / 3.0)
@@ -521,7 +527,8 @@ def price(
         method=solver.name,
         psor_iterations=sum(r.iterations for r in psor),
         psor_max_sweeps=max(r.max_iterations for r in psor),
-        domain=(k * math.exp(fine.x_min), k * math.exp(fine.x_min + (space_f.n - 1) * space_f.h)),
+        domain=(k * math.exp(fine.x_min),
+                k * math.exp(fine.x_min + (fine.space.n - 1) * fine.space.h)),
         warnings=tuple(warnings),
     )
     return Result(value, delta, gamma, theta, vega, rho, err, boundary, stats, option, market,
