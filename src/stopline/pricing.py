@@ -24,7 +24,7 @@ from .greeks import (
     read_at_spot,
     theta_from_pde,
 )
-from .grid import SpaceGrid, TimeGrid, build_space_grid
+from .grid import SpaceGrid, TimeGrid, build_space_grid, negligible_reach
 from .market import Market
 from .operator import choose_frame
 from .solve import (
@@ -251,16 +251,28 @@ def _resolve_grid(
         name, width = "custom", PRESETS["standard"].width_sd
         kwargs: dict = {"n_points": spec.space_points // 2 + 1}
         levels = max(spec.time_levels // 2, 2)
+        eps = NEGLIGIBLE_REACH * PRESETS["fine"].target
     else:
         name = check_choice("accuracy", accuracy, tuple(PRESETS))
         preset = PRESETS[name]
         width, levels = preset.width_sd, preset.time_levels // 2
-        scale = _decay_length(problem.rate, mu, problem.vol) if problem.american else math.inf
+        scale = _decay_length(problem.rate, mu, problem.vol, problem.is_put) \
+            if problem.american else math.inf
         kwargs = {
             "points_per_sd": 0.5 * preset.points_per_sd * sd / min(sd, scale),
             "h_max": 2.0 * preset.max_spacing,
             "n_max": MAX_COARSE_NODES,
         }
+        eps = NEGLIGIBLE_REACH * preset.target
+    if problem.american and problem.curves is None and not problem.has_events:
+        # an American option with flat data: the grid ends where the far field is known (deep
+        # in the exercise region, or where the option is worth a negligible part of the
+        # strike), and stays in frame "x", where the exercise value's kink stays on a node
+        lo_lim, hi_lim = _american_limits(problem, mu, eps)
+        space = build_space_grid(problem.x_spot, sd, drift, width_sd=width, lo_limit=lo_lim,
+                                 hi_limit=hi_lim, **kwargs)
+        if abs(mu) * space.h <= problem.vol**2:
+            return space, time_grid_for(problem, levels), name
     space = build_space_grid(problem.x_spot, sd, drift, width_sd=width, **kwargs)
     # cash dividends are applied in frame "x" (the dropped spot of a node is a fixed node)
     if choose_frame(sd, drift, space.h, problem.vol, mu) == "y" and not problem.has_events:
@@ -271,13 +283,76 @@ def _resolve_grid(
     return space, time_grid_for(problem, levels), name
 
 
-def _decay_length(rate: float, mu: float, vol: float) -> float:
+#: An American grid may end where the option is worth less than this times the preset's
+#: target (in units of the strike): see :func:`_american_limits`.
+NEGLIGIBLE_REACH = 1e-3
+
+
+def _american_limits(problem: PDEProblem, mu: float, eps: float) -> tuple[float, float]:
+    """Where an American grid (flat data, no cash dividends) may end, in ``x = ln(S / K)``.
+
+    Out of the money (above the strike for a put, below for a call): beyond the distance at
+    which the spot's chance of reaching the strike within the life is below ``eps``
+    (:func:`~stopline.grid.negligible_reach`), the option is worth less than ``eps`` times
+    the strike (times ``e^{-rT}`` when the rate is negative), and the far field's zero is
+    right to that. A call uses the symmetric put's drift (``C / K = e^x p(-x)``, McDonald and
+    Schroder 1998). In the money: beyond the perpetual option's critical spot (Merton 1973)
+    every finite-life option is exercised, so the far field's intrinsic value is exact; the
+    grid keeps five decay lengths to spare. With low volatility and a large drift these ends
+    make the domain a small part of what the spread of the forward would ask, so the grid
+    can resolve the boundary's decay length in frame "x".
+    """
+    vol, t, x_s = problem.vol, problem.expiry, problem.x_spot
+    if problem.is_put:
+        cap = max(1.0, math.exp(-problem.rate * t))
+        reach = negligible_reach(mu, vol, t, eps / cap)
+        scale = _decay_length(problem.rate, mu, vol, True)
+        hi = max(reach, x_s) + (5.0 * scale if math.isfinite(scale) else vol * math.sqrt(t))
+        lo = -math.inf
+        lam = _perpetual_root(problem.rate, mu, vol, True)
+        if lam is not None:
+            x_perp = math.log(lam / (lam - 1.0))
+            lo = min(x_perp - 0.1 * abs(x_perp) - 5.0 * scale, x_s - 5.0 * scale)
+        return lo, hi
+    mu_sym = problem.div_yield - problem.rate - 0.5 * vol * vol
+    cap = max(1.0, math.exp(-problem.div_yield * t))
+    reach = negligible_reach(mu_sym, vol, t, eps / cap)
+    scale = _decay_length(problem.rate, mu, vol, False)
+    lo = min(-reach, x_s) - (5.0 * scale if math.isfinite(scale) else vol * math.sqrt(t))
+    hi = math.inf
+    lam = _perpetual_root(problem.rate, mu, vol, False)
+    if lam is not None:
+        x_perp = math.log(lam / (lam - 1.0))
+        hi = max(x_perp + 0.1 * abs(x_perp) + 5.0 * scale, x_s + 5.0 * scale)
+    return lo, hi
+
+
+def _perpetual_root(rate: float, mu: float, vol: float, is_put: bool) -> float | None:
+    """The perpetual option's exponent (Merton 1973): the root of
+    ``vol^2/2 l^2 + mu l - r = 0`` below 0 for a put, above 1 for a call; None when it has
+    no such root (exercise never optimal, or two exercise boundaries)."""
+    disc = mu * mu + 2.0 * vol * vol * rate
+    if disc < 0.0:
+        return None
+    root = math.sqrt(disc)
+    lam = (-mu - root) / (vol * vol) if is_put else (-mu + root) / (vol * vol)
+    if is_put:
+        return lam if lam < 0.0 and rate > 0.0 else None
+    return lam if lam > 1.0 else None
+
+
+def _decay_length(rate: float, mu: float, vol: float, is_put: bool | None = None) -> float:
     """Length in ``ln S`` over which an American option's premium decays near its boundary.
 
-    ``1 / |lambda|`` for the roots of ``vol^2/2 l^2 + mu l - r = 0``, the exponents of the
-    perpetual option (Merton 1973). At low volatility this is far shorter than
-    ``vol sqrt(T)``, and the grid must resolve it rather than the spread of the spot.
+    ``1 / |lambda|`` for the perpetual option's exponent (Merton 1973): the negative root of
+    ``vol^2/2 l^2 + mu l - r = 0`` for a put, the one above 1 for a call (the smaller of the
+    two lengths when ``is_put`` is None). At low volatility this is far shorter than
+    ``vol sqrt(T)``, and the grid must resolve it rather than the spread of the spot. Infinite
+    when exercise is never optimal.
     """
+    if is_put is not None:
+        lam = _perpetual_root(rate, mu, vol, is_put)
+        return 1.0 / abs(lam) if lam is not None else math.inf
     disc = mu * mu + 2.0 * vol * vol * rate
     if disc < 0.0:
         return math.inf
@@ -300,6 +375,38 @@ def _expired(option: Option, market: Market, method: ExerciseMethod, t: float) -
                        warnings=("expiry is zero: intrinsic value, no grid solved",))
     return Result(intrinsic, delta, 0.0, 0.0, 0.0, 0.0, 0.0, ExerciseBoundary(empty, empty),
                   stats, option, market, t, "exact")
+
+
+def _perpetual_critical_spot(problem: PDEProblem) -> float | None:
+    """The perpetual option's critical spot / strike (Merton 1973), or None if it has none."""
+    mu = problem.rate - problem.div_yield - 0.5 * problem.vol**2
+    lam = _perpetual_root(problem.rate, mu, problem.vol, problem.is_put)
+    return None if lam is None else lam / (lam - 1.0)
+
+
+def _exercised_at_once(
+    option: Option, market: Market, method: ExerciseMethod, t: float, s_star: float,
+    warnings: list[str],
+) -> Result:
+    """Spot at or beyond the perpetual option's critical spot ``s_star``: exercise now.
+
+    A finite-life American option is worth no more than the perpetual one, which is worth its
+    intrinsic value there (Merton 1973), and no less than its intrinsic value; so the price
+    is the intrinsic value exactly, delta is -1 (put) or +1 (call), gamma, theta, vega and
+    rho are 0. No grid is solved (the grid would have to span from the spot to where the
+    option is still held, which at low volatility takes many thousands of nodes).
+    """
+    s, k = market.spot, option.strike
+    put = option.is_put
+    value = (k - s) if put else (s - k)
+    empty = np.empty(0)
+    note = (f"spot {s:g} is {'at or below' if put else 'at or above'} the perpetual option's "
+            f"critical spot {s_star:.6g}: exercised at once at any expiry, intrinsic value, no "
+            "grid solved")
+    stats = SolveStats(0, 0, 0, 0, 0, method.name, 0, 0, (s, s),
+                       warnings=(*warnings, note))
+    return Result(value, -1.0 if put else 1.0, 0.0, 0.0, 0.0, 0.0, 0.0,
+                  ExerciseBoundary(empty, empty), stats, option, market, t, "exact")
 
 
 def _zero_vol_limit(option: Option, market: Market, method: ExerciseMethod, t: float) -> Result:
@@ -443,6 +550,11 @@ def price(
     swapped = use_symmetry(problem)
     grid_problem = swapped_problem(problem) if swapped else problem
     solve_on = solve_swapped if swapped else solve
+    if american and problem.curves is None and not problem.dividend_tau:
+        s_star = _perpetual_critical_spot(problem)
+        if s_star is not None and (market.spot <= k * s_star if option.is_put
+                                   else market.spot >= k * s_star):
+            return _exercised_at_once(option, market, solver, t, k * s_star, warnings)
     space_c, time_c, acc_name = _resolve_grid(grid_problem, accuracy, grid)
     if space_c.n >= MAX_COARSE_NODES:
         warnings.append(

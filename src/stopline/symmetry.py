@@ -89,8 +89,10 @@ def solve_swapped(
     flipped = put.space.n - 1 - si if si >= 0 and put.drift == 0.0 else -1
     strike_index = flipped if 0 <= flipped < keep else -1
     call_space = SpaceGrid(float(x_call[0]), space.h, keep, strike_index, "x")
+    bnd = -put.report.boundary_x
+    bnd[bnd > _X_KEEP] = np.inf  # a critical spot beyond any float's reach
     report = MarchReport(
-        -put.report.boundary_x, put.report.iterations, put.report.max_iterations,
+        bnd, put.report.iterations, put.report.max_iterations,
         put.report.omega,
     )
     return GridSolution(call_space, time, values, payoff, 0.0, report, put.boundary_tau)
