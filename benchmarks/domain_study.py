@@ -14,7 +14,9 @@ uniform in rate and yield; seeded) and every corner of the box is added (moneyne
 per core) and compared with a reference:
 
 - European: the Black-Scholes-Merton closed form (``stopline.reference.bsm_price``);
-- American: a grid twice as fine as "fine" in space and time with a wider domain (preset
+- American never exercised early (put with ``r <= 0 <= q``, call with ``q <= 0 <= r``): the
+  same closed form (Merton 1973);
+- other American: a grid twice as fine as "fine" in space and time with a wider domain (preset
   "study-ref" registered in the worker processes only), checked against an independent
   Leisen-Reimer tree with Richardson extrapolation (``lr_extrapolated_price``, 2001 and 4003
   steps) and, where ``vol sqrt(T)`` is tiny, against the zero-volatility limit; the table
@@ -121,7 +123,11 @@ def reference(c: dict) -> dict:
     args = (c["kind"], s, k, c["expiry"], c["rate"], c["div_yield"], c["vol"])
     out: dict = {"key": _key(c)}
     t0 = time.perf_counter()
-    if c["style"] == "european":
+    r, q = c["rate"], c["div_yield"]
+    never = (r <= 0.0 <= q) if c["kind"] == "put" else (q <= 0.0 <= r)
+    if c["style"] == "european" or never:
+        # an American put with r <= 0 <= q (call: q <= 0 <= r) is never exercised early and
+        # equals the European (Merton 1973)
         out["ref"] = float(bsm_price(*args)) / k
         out["second"] = math.nan
     else:
@@ -206,10 +212,9 @@ def main(argv: list[str] | None = None) -> int:
         results = list(pool.map(run_presets, contracts, chunksize=1))
     print(f"{len(contracts)} contracts ({ns.n} random + corners), {ns.workers} workers, "
           f"{time.perf_counter() - t_start:.0f} s wall\n")
-    rows = []
-    for c, res in zip(contracts, results, strict=True):
-        ref = cache[_key(c)]
-        rows.append((c, res, ref))
+    rows = [(c, res, cache[_key(c)]) for c, res in zip(contracts, results, strict=True)]
+    dump = Path(tempfile.gettempdir()) / "stopline_domain_rows.json"
+    dump.write_text(json.dumps(rows))
     _report(rows, ns.top)
     return 0
 
@@ -224,7 +229,7 @@ def _report(rows: list, top: int) -> None:
     for name in PRESET_NAMES:
         target = PRESETS[name].target
         errs, errs_nn, secs, failed = [], [], [], 0
-        for c, res, ref in rows:
+        for _c, res, ref in rows:
             secs.append(res[name + "_seconds"])
             if not math.isfinite(res[name]):
                 failed += 1

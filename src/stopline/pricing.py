@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from dataclasses import dataclass, field
 
@@ -377,6 +378,21 @@ def _expired(option: Option, market: Market, method: ExerciseMethod, t: float) -
                   stats, option, market, t, "exact")
 
 
+def _never_exercised(problem: PDEProblem) -> bool:
+    """Early exercise is never optimal and the grid is hard: flat data, no cash dividends, a
+    put with ``r <= 0 <= q`` or a call with ``q <= 0 <= r`` (then the European value already
+    exceeds the intrinsic value, Merton 1973), and ``vol sqrt(T) >= 1`` or a drift beyond
+    four standard deviations."""
+    if problem.curves is not None or problem.dividend_tau:
+        return False
+    r, q = problem.rate, problem.div_yield
+    if not (r <= 0.0 <= q if problem.is_put else q <= 0.0 <= r):
+        return False
+    sd = problem.vol * math.sqrt(problem.expiry)
+    drift = (r - q - 0.5 * problem.vol**2) * problem.expiry
+    return sd >= 1.0 or abs(drift) > 4.0 * sd
+
+
 def _perpetual_critical_spot(problem: PDEProblem) -> float | None:
     """The perpetual option's critical spot / strike (Merton 1973), or None if it has none."""
     mu = problem.rate - problem.div_yield - 0.5 * problem.vol**2
@@ -531,6 +547,11 @@ def price(
     american = option.is_american
     problem = problem_from_market(option, market, t)
     warnings: list[str] = list(problem.warnings)
+    if american and _never_exercised(problem):
+        # exact (Merton 1973): the American equals the European; solved as one in the regimes
+        # where the American grid is the harder one (large vol sqrt(T), or drift >> spread)
+        problem = dataclasses.replace(problem, american=False)
+        american = False
     if american and _two_boundaries_possible(option.is_put, problem.rate, problem.div_yield):
         if solver.name == "direct":
             solver = ProjectedSOR()
@@ -617,7 +638,7 @@ def price(
         rho = central_difference(bumped[2], bumped[3], dr)
     # extrapolation may step below a bound the true price obeys; the bound is then closer
     floor = max(k - market.spot, 0.0) if option.is_put else max(market.spot - k, 0.0)
-    value = max(value, floor if american else 0.0)
+    value = max(value, floor if option.is_american else 0.0)
     # likewise delta: within [-1, 0] for a put and [0, 1] for a call (e^{-qT} when q < 0)
     dmax = max(1.0, math.exp(-problem.div_yield * t))
     delta = min(max(delta, -dmax), 0.0) if option.is_put else min(max(delta, 0.0), dmax)
