@@ -25,6 +25,8 @@ McDonald, R. L. and Schroder, M. D. (1998), "A parity result for American option
 Journal of Computational Finance 1(3), 5-13.
 Bjerksund, P. and Stensland, G. (1993), "American exchange options and a put-call
 transformation: a note", Journal of Business Finance and Accounting 20(5), 761-764.
+Stoll, H. R. (1969), "The relationship between put and call option prices", Journal of
+Finance 24(5), 801-824 (put-call parity, used for European calls deep in the money).
 """
 
 from __future__ import annotations
@@ -38,7 +40,16 @@ from .exercise import ExerciseMethod, MarchReport
 from .grid import SpaceGrid, TimeGrid
 from .solve import GridSolution, PDEProblem, solve
 
-__all__ = ["SYMMETRY_MIN_SD", "use_symmetry", "swapped_problem", "solve_swapped"]
+__all__ = [
+    "SYMMETRY_MIN_SD",
+    "PARITY_MIN_MONEYNESS",
+    "use_symmetry",
+    "use_parity",
+    "swapped_problem",
+    "parity_problem",
+    "solve_swapped",
+    "solve_parity",
+]
 
 #: A call is solved as the symmetric put when ``vol sqrt(T)`` reaches this. Measured on
 #: European calls against Black-Scholes (spot / strike 0.2-5): the call's own grid and the
@@ -50,15 +61,54 @@ SYMMETRY_MIN_SD = 3.0
 _X_KEEP = 600.0
 
 
-def use_symmetry(problem: PDEProblem) -> bool:
-    """Whether to solve this call as the symmetric put: flat data, no cash dividends and
-    ``vol sqrt(T) >= SYMMETRY_MIN_SD``."""
+#: A European call is solved as the put plus the forward (parity) when the spot is at least
+#: this multiple of the strike, or ``vol sqrt(T) >= SYMMETRY_MIN_SD``: the call's value, and
+#: its grid error, grow like the spot, the put's stay below the strike (domain study: a call
+#: at 32 times the strike was 1.4e-5 of the strike off at "standard").
+PARITY_MIN_MONEYNESS = 2.0
+
+
+def _plain_call(problem: PDEProblem) -> bool:
+    return not problem.is_put and problem.curves is None and not problem.dividend_tau
+
+
+def use_parity(problem: PDEProblem) -> bool:
+    """Whether to solve this European call as the put plus the forward (exact parity)."""
     return (
-        not problem.is_put
-        and problem.curves is None
-        and not problem.dividend_tau
+        _plain_call(problem) and not problem.american
+        and (problem.x_spot >= math.log(PARITY_MIN_MONEYNESS)
+             or problem.vol * math.sqrt(problem.expiry) >= SYMMETRY_MIN_SD)
+    )
+
+
+def use_symmetry(problem: PDEProblem) -> bool:
+    """Whether to solve this American call as the symmetric put: flat data, no cash
+    dividends and ``vol sqrt(T) >= SYMMETRY_MIN_SD``."""
+    return (
+        _plain_call(problem) and problem.american
         and problem.vol * math.sqrt(problem.expiry) >= SYMMETRY_MIN_SD
     )
+
+
+def parity_problem(problem: PDEProblem) -> PDEProblem:
+    """The European put on the same strike and market."""
+    return replace(problem, is_put=True)
+
+
+def solve_parity(
+    problem: PDEProblem, space: SpaceGrid, time: TimeGrid, method: ExerciseMethod
+) -> GridSolution:
+    """Solve the European call ``problem`` as the put plus the forward on the put's grid.
+
+    ``C = P + S e^{-qT} - K e^{-rT}`` holds exactly for European options (Stoll 1969); the
+    forward is added on every node, so the read-off and the Richardson step see the call.
+    """
+    put = solve(parity_problem(problem), space, time, method)
+    fwd = np.exp(put.x - problem.div_yield * problem.expiry) - math.exp(
+        -problem.rate * problem.expiry
+    )
+    payoff = np.maximum(np.exp(put.x) - 1.0, 0.0)
+    return replace(put, values=put.values + fwd, payoff=payoff)
 
 
 def swapped_problem(problem: PDEProblem) -> PDEProblem:
