@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 import pytest
 
@@ -28,3 +30,27 @@ def test_time_grid_is_graded_with_rannacher_half_steps() -> None:
     assert np.all(np.isin(np.round(levels, 14), np.round(t.tau, 14)))
     f = t.refined()
     assert np.all(np.isin(np.round(t.tau[t.theta == 0.5], 14), np.round(f.tau, 14)))
+
+
+@pytest.mark.parametrize("mu,vol,t", [(0.06, 0.01, 30.0), (0.0, 0.2, 1.0), (-0.05, 0.3, 5.0), (0.25, 0.01, 50.0)])
+@pytest.mark.parametrize("eps", [1e-7, 1e-12])
+def test_negligible_reach_is_where_the_first_passage_chance_is_eps(
+    mu: float, vol: float, t: float, eps: float
+) -> None:
+    # Source: first passage of Brownian motion with drift (reflection principle; Harrison
+    # 1985, section 1.8), evaluated here with scipy's normal cdf in plain floats
+    from scipy.stats import norm
+
+    from stopline.grid import negligible_reach
+
+    s = vol * math.sqrt(t)
+
+    def chance(a: float) -> float:
+        return norm.cdf((-a - mu * t) / s) + math.exp(-2 * mu * a / vol**2) * norm.cdf((-a + mu * t) / s)
+
+    a = negligible_reach(mu, vol, t, eps)
+    assert chance(a) <= eps * 1.0001
+    assert chance(a * (1 - 2e-3)) > eps
+    if mu == 0.0:
+        # no drift: the chance is 2 N(-a / s)
+        assert a == pytest.approx(s * norm.isf(eps / 2), rel=2e-3)

@@ -281,7 +281,7 @@ def _resolve_grid(
             # a long, very volatile life: the boundary sweeps far on the graded levels' long
             # late steps; more levels (domain study: "standard" 3e-5 of the strike off at
             # vol sqrt(T) = 6.8 with 104 steps, 4e-6 with 404)
-            levels = math.ceil(levels * min(sd / LONG_SD, 8.0))
+            levels = max(levels, min(math.ceil(levels * sd / LONG_SD), 8 * levels, 400))
         space = build_space_grid(problem.x_spot, sd, drift, width_sd=width, lo_limit=lo_lim,
                                  hi_limit=hi_lim, **kwargs)
         if abs(mu) * space.h <= problem.vol**2:
@@ -297,7 +297,8 @@ def _resolve_grid(
 
 
 #: Above this ``vol sqrt(T)`` an American grid gets proportionally more time levels (at most
-#: eight times the preset's).
+#: eight times the preset's, and no more than 400 on the coarse grid: "fine" gained nothing
+#: from more in the domain study, its error there being set by the node cap).
 LONG_SD = 2.0
 #: An American grid may end where the option is worth less than this times the preset's
 #: target (in units of the strike): see :func:`_american_limits`.
