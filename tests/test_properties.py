@@ -2,8 +2,12 @@
 
 The properties are no-arbitrage facts of the trade (Merton 1973, "Theory of rational option
 pricing"; common practice). Each holds for the true prices; the numerical prices may miss it
-by their error, so comparisons allow the two answers' error estimates plus 1e-5 x strike, the
-accuracy promised everywhere.
+by their error, so a comparison allows every answer it involves its error estimate plus
+1e-5 x strike, the accuracy promised everywhere (two answers off by 1e-5 x K each in opposite
+directions miss an ordering by 2e-5 x K).
+
+The strategies span the whole supported domain of issue 3: expiry 1 day to 50 years, vol 1 %
+to 500 %, spot / strike 0.01 to 100, strike 0.01 to 1e6, rate -5 % to 25 %, yield 0 to 25 %.
 """
 
 from __future__ import annotations
@@ -15,7 +19,7 @@ from hypothesis import strategies as st
 
 from stopline import Market, Option, price
 
-SETTINGS = settings(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+SETTINGS = settings(max_examples=300, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 
 kinds = st.sampled_from(["put", "call"])
 strikes = st.floats(0.01, 1e6)
@@ -27,7 +31,7 @@ yields = st.floats(0.0, 0.25)
 
 
 def _slack(k: float, *results) -> float:
-    return 1e-5 * k + sum(r.error_estimate for r in results)
+    return sum(1e-5 * k + r.error_estimate for r in results)
 
 
 def _check_common_bounds(kind: str, k: float, s: float, am, eu) -> float:  # noqa: ANN001
@@ -64,10 +68,17 @@ def test_bounds_and_finiteness(kind, k, m, t, v, r, q) -> None:
     assert am.price <= cap + slack
     lo, hi = (-1.0, 0.0) if kind == "put" else (0.0, 1.0)
     assert lo - 1e-6 <= am.delta <= hi + 1e-6
+    # a European put is worth at most K e^{-rT}, a call at most S e^{-qT}; its delta lies
+    # within [-e^{-qT}, 0] or [0, e^{-qT}] (Merton 1973)
+    eu_cap = k * math.exp(-r * t) if kind == "put" else s * math.exp(-q * t)
+    assert eu.price <= eu_cap + slack
+    lo, hi = (-math.exp(-q * t), 0.0) if kind == "put" else (0.0, math.exp(-q * t))
+    assert lo - 1e-6 <= eu.delta <= hi + 1e-6
+    assert math.isfinite(am.error_estimate) and math.isfinite(eu.error_estimate)
 
 
 @SETTINGS
-@given(kinds, moneyness, st.floats(0.02, 5.0), st.floats(0.05, 1.5), rates, yields)
+@given(kinds, moneyness, expiries, vols, rates, yields)
 def test_monotone_and_convex_in_spot(kind, m, t, v, r, q) -> None:
     k = 100.0
     opt = Option(kind, k, t)
@@ -83,7 +94,18 @@ def test_monotone_and_convex_in_spot(kind, m, t, v, r, q) -> None:
 
 
 @SETTINGS
-@given(kinds, st.floats(0.3, 3.0), st.floats(0.02, 5.0), st.floats(0.05, 2.0), rates, yields)
+@given(kinds, moneyness, expiries, st.floats(0.01, 4.5), rates, yields)
+# found: a call 11 x in the money at vol 437 %, T 19 -> 22.8: each "standard" price within
+# ~6e-6 x K of "fine", but 1.5e-5 x K apart the wrong way; the slack had allowed 1e-5 x K for
+# the pair instead of for each answer
+@example("call", 11.0, 19.0, 4.375, 0.125, 0.25)
+# found: the same at 29 x in the money, T 38 -> 45.6: 3.5e-5 x K apart the wrong way. Not
+# fixed: solved as the symmetric put (strike = the call's spot), whose error is 1.2e-6 of
+# ITS strike, near its exercise boundary; 1e-5 x the call's strike asks 3.4e-7 of it, and the
+# grid is at its node cap (vol sqrt(T) = 27). Kept as a known failure (README, Accuracy).
+@example("call", 29.0, 38.0, 4.375, 0.125, 0.25).xfail(
+    raises=AssertionError, reason="deep in-the-money call at vol sqrt(T) ~ 27: see README"
+)
 def test_american_increases_with_vol_and_expiry(kind, m, t, v, r, q) -> None:
     k = 100.0
     mkt = Market(k * m, r, v, q)
@@ -95,7 +117,7 @@ def test_american_increases_with_vol_and_expiry(kind, m, t, v, r, q) -> None:
 
 
 @SETTINGS
-@given(st.floats(0.3, 3.0), st.floats(0.02, 10.0), st.floats(0.05, 1.5), rates, yields)
+@given(moneyness, expiries, vols, rates, yields)
 @example(2.5, 7.5, 0.06640625, 0.15625, 0.06071019362178427)  # found: "fast" beyond its estimate
 def test_put_call_symmetry(m, t, v, r, q) -> None:
     # McDonald & Schroder (1998), J. Comput. Finance 1(3): C(S, K, r, q) = P(K, S, q, r).

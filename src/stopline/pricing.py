@@ -296,6 +296,9 @@ def _resolve_grid(
     return space, time_grid_for(problem, levels), name
 
 
+#: Accuracy promised everywhere in the documented domain, relative to the strike, by every
+#: preset but "fast" (whose target, 1e-4, is looser); see README, Accuracy and robustness.
+EVERYWHERE = 1e-5
 #: Above this ``vol sqrt(T)`` an American grid gets proportionally more time levels (at most
 #: eight times the preset's, and no more than 400 on the coarse grid: "fine" gained nothing
 #: from more in the domain study, its error there being set by the node cap).
@@ -665,6 +668,17 @@ def price(
         vega, rho = european_vega_rho(market.spot, value, delta, gamma, problem.vol, t)
     theta = theta_at_valuation(problem, market.spot, k, value, delta, gamma, rf.exercised)
     err = abs(rf.value - rc.value) / 3.0
+    # numerical health: the two grids disagree by more than the preset promises, or a number
+    # came out non-finite (neither is expected anywhere in the documented domain)
+    promised = max(PRESETS[acc_name].target if acc_name in PRESETS else 0.0, EVERYWHERE)
+    if err > promised * k:
+        warnings.append(
+            f"the two grids differ by {3 * err / k:.1e} of the strike (error estimate "
+            f"{err / k:.1e}), above the {promised:g} promised: the price may be off by more; "
+            "try accuracy='fine'"
+        )
+    if not all(math.isfinite(x) for x in (value, delta, gamma, theta, err)):
+        warnings.append("a non-finite number came out of the grid: do not use this result")
     raw = k * np.exp(fine.report.boundary_x)
     # with flat inputs and no dividends the true boundary is monotone in time to expiry
     spot_b = monotone_fit(raw, decreasing=option.is_put) if flat else raw.copy()
