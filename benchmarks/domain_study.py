@@ -258,11 +258,25 @@ def _report(rows: list, top: int) -> None:
     print("\nslowest prices (seconds at fast / standard / fine):")
     for c, res, _ in sorted(rows, key=lambda x: -max(x[1][n + "_seconds"] for n in PRESET_NAMES))[:top]:
         print(f"  {_describe(c)}  " + " / ".join(f"{res[n + '_seconds']:.3f}" for n in PRESET_NAMES))
-    print("\nreference vs independent tree (American; LR 2001/4003 extrapolated), largest gaps:")
+    print("\nreference vs independent tree (American; LR 2001/4003 extrapolated), largest gaps")
+    print("(perp.: the perpetual option's value, a close bound when the chance of reaching the")
+    print("boundary late in the life is nil, e.g. vol 1 % with a drift away from exercise):")
     am = [(c, ref) for c, _, ref in rows if c["style"] == "american" and math.isfinite(ref["second"])]
     for c, ref in sorted(am, key=lambda x: -abs(x[1]["ref"] - x[1]["second"]))[:top]:
         print(f"  {_describe(c)}  grid {ref['ref']:.6e} tree {ref['second']:.6e} "
-              f"gap {abs(ref['ref'] - ref['second']):.1e}")
+              f"gap {abs(ref['ref'] - ref['second']):.1e} perp. {_perpetual(c):.6e}")
+
+
+def _perpetual(c: dict) -> float:
+    """Perpetual American value / strike (Merton 1973), NaN where it does not exist."""
+    from stopline.reference import perpetual_american
+
+    try:
+        k = c["strike"]
+        return perpetual_american(c["kind"], k * c["moneyness"], k, c["rate"], c["div_yield"],
+                                  c["vol"]).value / k
+    except Exception:  # noqa: BLE001 - no perpetual value (exercise never optimal)
+        return math.nan
 
 
 def _err(row: tuple, name: str) -> float:

@@ -515,6 +515,20 @@ def price(
     dividends needs no re-solve: ``vega = vol T S^2 gamma`` and ``rho = T (S delta - V)``
     hold exactly in the model. See :mod:`stopline.greeks`.
 
+    Accuracy over the whole domain (expiry 1 day to 50 years, vol 1 % to 500 %, spot /
+    strike 0.01 to 100, strike 0.01 to 1e6, rate -5 % to 25 %, yield 0 to 25 %): the price is
+    finite and within 1e-5 of the strike at "standard" and "fine" (within 1e-4 at "fast"),
+    and within the preset's target where the price is not negligible. A price is
+    *negligible* when it is below 1e-6 of the strike; there only the 1e-5 bound is claimed.
+    Degenerate but legal inputs have exact answers without a grid: expiry zero (intrinsic
+    value), ``vol sqrt(T)`` below 2e-6 (the zero-volatility limit), an American spot beyond
+    the perpetual option's critical spot (intrinsic value, delta -1 or +1). An American
+    option never exercised early (put with ``r <= 0 <= q``, call with ``q <= 0 <= r``) may be
+    solved as the European it equals; calls with ``vol sqrt(T) >= 3`` through puts
+    (:mod:`stopline.symmetry`). Each such choice, and any sign of numerical trouble, is
+    named in ``Result.stats.warnings``. Measured by ``benchmarks/domain_study.py``; see the
+    README, "Accuracy and robustness over the whole domain".
+
     Parameters
     ----------
     option : Option
@@ -548,7 +562,9 @@ def price(
 
     References
     ----------
-    Crank, J. and Nicolson, P. (1947); Rannacher, R. (1984); Richardson, L. F. (1911).
+    Crank, J. and Nicolson, P. (1947); Rannacher, R. (1984); Richardson, L. F. (1911);
+    Merton, R. C. (1973), Bell Journal of Economics 4(1) (perpetual option, early exercise
+    never optimal); McDonald, R. L. and Schroder, M. D. (1998), J. Comput. Finance 1(3).
 
     Examples
     --------
