@@ -111,7 +111,7 @@ def test_american_increases_with_vol_and_expiry(kind, m, t, v, r, q) -> None:
     assert longer.price >= base.price - _slack(k, base, longer)
 
 
-@SETTINGS
+@settings(SETTINGS, max_examples=200)
 @given(moneyness, expiries, vols, rates, yields)
 @example(2.5, 7.5, 0.06640625, 0.15625, 0.06071019362178427)  # found: "fast" beyond its estimate
 def test_put_call_symmetry(m, t, v, r, q) -> None:

@@ -302,9 +302,9 @@ EVERYWHERE = 1e-5
 #: Above this ``vol sqrt(T)`` an American grid gets ``(vol sqrt(T) / LONG_SD) ** 1.5`` times
 #: the preset's time levels, at most ``MAX_LONG_LEVELS`` on the coarse grid. Measured: an
 #: American call 11 times in the money at vol 437 %, T 22.8 (vol sqrt(T) = 21) is 1.5e-5 of
-#: the strike off with 400 coarse levels at 10,000 nodes, 3e-8 with 1600 (space converged).
+#: the strike off with 400 coarse levels at 10,000 nodes, 7e-7 with 800 (space converged).
 LONG_SD = 2.0
-MAX_LONG_LEVELS = 1600
+MAX_LONG_LEVELS = 800
 #: An American grid may end where the option is worth less than this times the preset's
 #: target (in units of the strike): see :func:`_american_limits`.
 NEGLIGIBLE_REACH = 1e-3
