@@ -523,8 +523,8 @@ def price(
 
     Accuracy over the whole domain (expiry 1 day to 50 years, vol 1 % to 500 %, spot /
     strike 0.01 to 100, strike 0.01 to 1e6, rate -5 % to 25 %, yield 0 to 25 %): the price is
-    finite and within 1e-5 of the strike at "standard" and "fine" (within 1e-4 at "fast"),
-    and within the preset's target where the price is not negligible. A price is
+    finite and within 1e-5 of the strike at "standard" and "fine", and aims at the preset's
+    target (for "fast", 1e-4) where the price is not negligible. A price is
     *negligible* when it is below 1e-6 of the strike; there only the 1e-5 bound is claimed.
     Degenerate but legal inputs have exact answers without a grid: expiry zero (intrinsic
     value), ``vol sqrt(T)`` below 2e-6 (the zero-volatility limit), an American spot beyond
