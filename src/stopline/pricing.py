@@ -248,9 +248,15 @@ class Result:
 
 
 def _resolve_grid(
-    problem: PDEProblem, accuracy: str, grid: GridSpec | tuple[int, int] | None
+    problem: PDEProblem, accuracy: str, grid: GridSpec | tuple[int, int] | None,
+    refine: float = 1.0,
 ) -> tuple[SpaceGrid, TimeGrid, str]:
-    """The coarse grid of the Richardson pair, in the frame that suits the problem."""
+    """The coarse grid of the Richardson pair, in the frame that suits the problem.
+
+    ``refine`` divides a preset's spacing (a call solved as the symmetric put, whose values
+    are in units of the call's spot: ``sqrt(S / K)`` keeps a second-order error within the
+    target relative to the call's strike).
+    """
     sd = problem.vol * math.sqrt(problem.expiry)
     mu = problem.rate - problem.div_yield - 0.5 * problem.vol**2
     drift = mu * problem.expiry
@@ -267,8 +273,8 @@ def _resolve_grid(
         scale = _decay_length(problem.rate, mu, problem.vol, problem.is_put) \
             if problem.american else math.inf
         kwargs = {
-            "points_per_sd": 0.5 * preset.points_per_sd * sd / min(sd, scale),
-            "h_max": 2.0 * preset.max_spacing,
+            "points_per_sd": 0.5 * refine * preset.points_per_sd * sd / min(sd, scale),
+            "h_max": 2.0 * preset.max_spacing / refine,
             "n_max": MAX_COARSE_NODES,
         }
         eps = NEGLIGIBLE_REACH * preset.target
@@ -619,7 +625,8 @@ def price(
         if s_star is not None and (market.spot <= k * s_star if option.is_put
                                    else market.spot >= k * s_star):
             return _exercised_at_once(option, market, solver, t, k * s_star, warnings)
-    space_c, time_c, acc_name = _resolve_grid(grid_problem, accuracy, grid)
+    refine = math.sqrt(max(market.spot / k, 1.0)) if swapped else 1.0
+    space_c, time_c, acc_name = _resolve_grid(grid_problem, accuracy, grid, refine)
     if space_c.n >= MAX_COARSE_NODES:
         warnings.append(
             f"the grid reached its cap of {MAX_COARSE_NODES} coarse nodes; spacing is wider than "
