@@ -143,7 +143,7 @@ def preset_layout(x_spot, expiry, rate, div_yield, vol, american, width_sd, poin
 @njit(cache=True)
 def flat_plan(tau, h_coef, rate, div_yield, vol, frame_y, out):
     """Per-step plan for flat data into ``out``, shape (7, n_steps): rows ``lo, di, up`` (the
-    constant coefficients ``h_coef``), ``df_r, df_q, shift, scale`` (see
+    constant coefficients, a tuple ``h_coef``), ``df_r, df_q, shift, scale`` (see
     :class:`stopline.operator.StepPlan`)."""
     for k in range(tau.shape[0]):
         int_r = rate * tau[k]
@@ -347,7 +347,7 @@ def _solve_flat(is_put, american, expiry, rate, div_yield, vol, x_min, h, n, str
 @njit(cache=True)
 def price_pair(
     is_put, american, expiry, rate, div_yield, vol, x_spot, strike, x_min, h, n, strike_index,
-    coef, unit_tau_c, unit_dt_c, unit_theta_c, unit_tau_f, unit_dt_f, unit_theta_f, n_par,
+    coef_c, coef_f, unit_tau_c, unit_dt_c, unit_theta_c, unit_tau_f, unit_dt_f, unit_theta_f, n_par,
     out, bnd_x, raw, spot,
 ):
     """Both grids of a Richardson pair in frame "x" with flat data and the direct sweep.
@@ -363,8 +363,9 @@ def price_pair(
     x_min, h, n, strike_index : float, float, int, int
         The coarse grid (:func:`preset_layout`); the fine grid has half the spacing on the
         same domain.
-    coef : ndarray, shape (2, 3)
-        Operator coefficients ``(lo, di, up)`` on the coarse and the fine spacing.
+    coef_c, coef_f : tuple of 3 floats
+        Operator coefficients ``(lo, di, up)`` on the coarse and the fine spacing
+        (:func:`stopline.operator.coefficients`).
     unit_tau_c, unit_dt_c, unit_theta_c, unit_tau_f, unit_dt_f, unit_theta_f : ndarray
         Time grids of the coarse and fine grid for ``T = 1``
         (:func:`stopline.grid.unit_time_grid`).
@@ -388,14 +389,14 @@ def price_pair(
             bnd = np.empty(unit_tau_c.shape[0])
             hg, ng, kg = h, n, strike_index
             v, payoff, tan = _solve_flat(is_put, american, expiry, rate, div_yield, vol, x_min,
-                                         hg, ng, kg, coef[0], unit_tau_c, unit_dt_c,
+                                         hg, ng, kg, coef_c, unit_tau_c, unit_dt_c,
                                          unit_theta_c, n_par, bnd)
         else:
             bnd = bnd_x
             hg, ng = 0.5 * h, 2 * n - 1
             kg = 2 * strike_index if strike_index >= 0 else -1
             v, payoff, tan = _solve_flat(is_put, american, expiry, rate, div_yield, vol, x_min,
-                                         hg, ng, kg, coef[1], unit_tau_f, unit_dt_f,
+                                         hg, ng, kg, coef_f, unit_tau_f, unit_dt_f,
                                          unit_theta_f, n_par, bnd)
         x_b = bnd[bnd.shape[0] - 1] if american else math.nan
         val, dlt, gam, exd = read_off(v, payoff, x_min, hg, x_spot, strike, american, x_b,

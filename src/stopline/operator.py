@@ -159,7 +159,7 @@ def _plan_flat(
 ) -> StepPlan:
     """:func:`plan_steps` for flat data: the same numbers, without per-step curve look-ups."""
     plan = np.empty((7, time.dt.shape[0]))
-    coef = np.array(coefficients(h, rate, div_yield, vol, frame))
+    coef = coefficients(h, rate, div_yield, vol, frame)
     _pairkernels.flat_plan(time.tau, coef, rate, div_yield, vol, frame == "y", plan)
     lo, di, up, df_r, df_q, shift, scale = plan
     return StepPlan(

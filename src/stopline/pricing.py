@@ -536,22 +536,21 @@ def _richardson(
     t: float,
 ) -> tuple[float, float, float]:
     """Value, delta and gamma from the pair's read-offs, within the bounds the model obeys."""
-    k = option.strike
+    k, s, is_put = option.strike, market.spot, option.is_put
     value = _extrapolate(rc.value, rf.value)
     delta = _extrapolate(rc.delta, rf.delta)
     gamma = _extrapolate(rc.gamma, rf.gamma)
     if rf.exercised != rc.exercised:  # the grids put the spot on different sides of the
         value, delta, gamma = rf.value, rf.delta, rf.gamma  # boundary: do not extrapolate
+    intrinsic = max(k - s, 0.0) if is_put else max(s - k, 0.0)
     if rf.exercised:
         # exercised at once: the intrinsic value of the real spot (also under escrowed dividends)
-        value = max(k - market.spot, 0.0) if option.is_put else max(market.spot - k, 0.0)
-        delta, gamma = rf.delta, rf.gamma
+        value, delta, gamma = intrinsic, rf.delta, rf.gamma
     # extrapolation may step below a bound the true price obeys; the bound is then closer
-    floor = max(k - market.spot, 0.0) if option.is_put else max(market.spot - k, 0.0)
-    value = max(value, floor if option.is_american else 0.0)
+    value = max(value, intrinsic if option.is_american else 0.0)
     # likewise delta: within [-1, 0] for a put and [0, 1] for a call (e^{-qT} when q < 0)
     dmax = max(1.0, math.exp(-div_yield * t))
-    delta = min(max(delta, -dmax), 0.0) if option.is_put else min(max(delta, 0.0), dmax)
+    delta = min(max(delta, -dmax), 0.0) if is_put else min(max(delta, 0.0), dmax)
     return value, delta, gamma
 
 
@@ -589,14 +588,14 @@ def _price_pair(
     levels = preset.time_levels // 2
     unit_c = unit_time_grid(levels)
     unit_f = unit_time_grid(2 * levels)
-    coef = np.array((coefficients(h, rate, q, vol), coefficients(0.5 * h, rate, q, vol)))
     tangents = greeks == "full" and american
     out = np.empty(_pairkernels.PAIR_OUT)
     m_f = unit_f[0].shape[0]
     bnd = np.empty((3, m_f))
     _pairkernels.price_pair(
-        is_put, american, t, rate, q, vol, x_spot, k, x_min, h, n, k_idx, coef, *unit_c,
-        *unit_f, 2 if tangents else 0, out, bnd[0], bnd[1], bnd[2],
+        is_put, american, t, rate, q, vol, x_spot, k, x_min, h, n, k_idx,
+        coefficients(h, rate, q, vol), coefficients(0.5 * h, rate, q, vol), *unit_c, *unit_f,
+        2 if tangents else 0, out, bnd[0], bnd[1], bnd[2],
     )
     o = out.tolist()
     rc = GridReadout(o[0], o[1], o[2], o[3] != 0.0)
