@@ -21,7 +21,10 @@ so the two cannot drift apart:
   (:func:`stopline.boundary.monotone_fit`).
 
 All work on plain float64 arrays and scalars and are compiled with ``cache=True``; the
-tests compare :func:`price_pair` with the general path over a seeded set of contracts.
+tests compare :func:`price_pair` with the general path over a seeded set of contracts. The
+shared rules are marked ``inline="always"``: :func:`price_pair` takes their bodies in
+(numba IR inlining), so a fresh process compiles one function for the pair instead of one
+per rule; called from Python they compile on their own as usual.
 """
 
 from __future__ import annotations
@@ -57,7 +60,7 @@ STENCIL = 6
 PAIR_OUT = 12
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def space_layout(x_spot, sd, drift, width_sd, points_per_sd, n_points, h_max, n_max, frame_y):
     """First node, spacing, node count and strike index of a uniform grid.
 
@@ -91,7 +94,7 @@ def space_layout(x_spot, sd, drift, width_sd, points_per_sd, n_points, h_max, n_
     return -j_lo * h, h, n, j_lo
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def decay_length(rate, mu, vol):
     """Length in ``ln S`` over which an American option's premium decays near its boundary.
 
@@ -112,7 +115,7 @@ def decay_length(rate, mu, vol):
     return best
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def frame_y_needed(sd, drift, h, vol, mu):
     """Whether frame "x" would be non-monotone (``|mu| h > vol^2``) on spacing ``h`` or would
     spend most of its nodes on the forward's path (``|drift| > 4 sd``)."""
@@ -140,7 +143,7 @@ def preset_layout(x_spot, expiry, rate, div_yield, vol, american, width_sd, poin
     return x_min, h, n, k, frame_y_needed(sd, drift, h, vol, mu)
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def flat_plan(tau, h_coef, rate, div_yield, vol, frame_y, out):
     """Per-step plan for flat data into ``out``, shape (7, n_steps): rows ``lo, di, up`` (the
     constant coefficients, a tuple ``h_coef``), ``df_r, df_q, shift, scale`` (see
@@ -161,7 +164,7 @@ def flat_plan(tau, h_coef, rate, div_yield, vol, frame_y, out):
             out[6, k] = 1.0
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def node_exp(x_min, h, n):
     """``e^{x_j}`` on the nodes ``x_j = x_min + j h``."""
     out = np.empty(n)
@@ -170,7 +173,7 @@ def node_exp(x_min, h, n):
     return out
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def payoff_nodes(ex, is_put, shift, strike_index, out):
     """Exercise value / strike on the nodes where ``S / K = e^y shift`` into ``out``; exactly
     zero on the strike node (``strike_index``, or -1) when ``shift == 1``."""
@@ -179,7 +182,7 @@ def payoff_nodes(ex, is_put, shift, strike_index, out):
         out[strike_index] = 0.0
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def tangent_coefficients(h, vol, is_put, american, s_lo, s_hi, tau, df_r, df_q, dco, dfar):
     """Per-step derivatives of the operator and the far-field values with respect to the vol
     (index 0) and the rate (index 1), into ``dco`` (2, 3, n_steps) and ``dfar`` (2, 2, n_steps).
@@ -207,7 +210,7 @@ def tangent_coefficients(h, vol, is_put, american, s_lo, s_hi, tau, df_r, df_q, 
             dfar[1, end, k] = sign * tau[k] * df_r[k] if active else 0.0
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def read_off(values, payoff, x_min, h, x_spot, strike, american, x_boundary, put_side, pv):
     """Quintic read-off of value, delta and gamma at ``x_spot`` (money units).
 
@@ -262,7 +265,7 @@ def read_off(values, payoff, x_min, h, x_spot, strike, american, x_boundary, put
     return strike * v, vx / e, (vxx - vx) / (strike * e * e), False
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def monotone_fit_into(values, decreasing, out):
     """Least-squares monotone fit of ``values`` into ``out``, NaNs kept in place (the rule of
     :func:`stopline.boundary.monotone_fit`); ``out`` equals ``values`` where they are
@@ -301,7 +304,7 @@ def monotone_fit_into(values, decreasing, out):
         out[idx[i]] = sign * fit[i]
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def boundary_spots(boundary_x, strike, fit, decreasing, raw, spot):
     """Critical spots ``strike e^x`` into ``raw`` and, into ``spot``, their monotone fit
     (``fit``: flat data, no cash dividends) or a copy."""
@@ -310,10 +313,11 @@ def boundary_spots(boundary_x, strike, fit, decreasing, raw, spot):
     if fit:
         monotone_fit_into(raw, decreasing, spot)
     else:
-        spot[:] = raw
+        for i in range(raw.shape[0]):
+            spot[i] = raw[i]
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def _solve_flat(is_put, american, expiry, rate, div_yield, vol, x_min, h, n, strike_index,
                 h_coef, unit_tau, unit_dt, unit_theta, n_par, bnd):
     """One grid of the pair: payoff, plan, march (with ``n_par`` tangents: 0, or 2 for vol
@@ -384,30 +388,33 @@ def price_pair(
     Crank, J. and Nicolson, P. (1947); Brennan, M. J. and Schwartz, E. S. (1977);
     Fornberg, B. (1988); Richardson, L. F. (1911).
     """
-    for g in range(2):
-        if g == 0:
-            bnd = np.empty(unit_tau_c.shape[0])
-            hg, ng, kg = h, n, strike_index
-            v, payoff, tan = _solve_flat(is_put, american, expiry, rate, div_yield, vol, x_min,
-                                         hg, ng, kg, coef_c, unit_tau_c, unit_dt_c,
-                                         unit_theta_c, n_par, bnd)
-        else:
-            bnd = bnd_x
-            hg, ng = 0.5 * h, 2 * n - 1
-            kg = 2 * strike_index if strike_index >= 0 else -1
-            v, payoff, tan = _solve_flat(is_put, american, expiry, rate, div_yield, vol, x_min,
-                                         hg, ng, kg, coef_f, unit_tau_f, unit_dt_f,
-                                         unit_theta_f, n_par, bnd)
+    for g in range(2):  # coarse, then fine; one call site each (compile time)
+        fine = g == 1
+        hg = 0.5 * h if fine else h
+        ng = 2 * n - 1 if fine else n
+        kg = strike_index
+        if fine and strike_index >= 0:
+            kg = 2 * strike_index
+        unit_tau = unit_tau_f if fine else unit_tau_c
+        bnd = bnd_x if fine else np.empty(unit_tau.shape[0])
+        v, payoff, tan = _solve_flat(
+            is_put, american, expiry, rate, div_yield, vol, x_min, hg, ng, kg,
+            coef_f if fine else coef_c, unit_tau, unit_dt_f if fine else unit_dt_c,
+            unit_theta_f if fine else unit_theta_c, n_par, bnd,
+        )
         x_b = bnd[bnd.shape[0] - 1] if american else math.nan
-        val, dlt, gam, exd = read_off(v, payoff, x_min, hg, x_spot, strike, american, x_b,
-                                      is_put, 0.0)
-        out[4 * g] = val
-        out[4 * g + 1] = dlt
-        out[4 * g + 2] = gam
-        out[4 * g + 3] = 1.0 if exd else 0.0
-        for i in range(2):
-            out[8 + 2 * g + i] = 0.0
-        for i in range(n_par):
-            out[8 + 2 * g + i] = read_off(tan[i], payoff, x_min, hg, x_spot, strike, False,
-                                          math.nan, is_put, 0.0)[0]
+        out[8 + 2 * g] = 0.0
+        out[9 + 2 * g] = 0.0
+        for i in range(n_par + 1):  # the values, then each tangent (read like a European)
+            val, dlt, gam, exd = read_off(
+                v if i == 0 else tan[i - 1], payoff, x_min, hg, x_spot, strike,
+                american and i == 0, x_b if i == 0 else math.nan, is_put, 0.0,
+            )
+            if i == 0:
+                out[4 * g] = val
+                out[4 * g + 1] = dlt
+                out[4 * g + 2] = gam
+                out[4 * g + 3] = 1.0 if exd else 0.0
+            else:
+                out[8 + 2 * g + i - 1] = val
     boundary_spots(bnd_x, strike, True, is_put, raw, spot)
