@@ -27,7 +27,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from . import _pairkernels
+from . import _kernels
 from ._atomic import atomic_write
 from ._types import FloatArray
 
@@ -54,7 +54,7 @@ def monotone_fit(values: FloatArray, *, decreasing: bool) -> FloatArray:
     """
     src = np.ascontiguousarray(values, dtype=np.float64)
     out = np.empty_like(src)
-    _pairkernels.monotone_fit_into(src, bool(decreasing), out)
+    _kernels.monotone_fit_into(src, bool(decreasing), out)
     return out
 
 

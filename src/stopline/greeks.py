@@ -44,7 +44,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from . import _kernels, _pairkernels
+from . import _kernels
 from ._types import FloatArray
 
 if TYPE_CHECKING:
@@ -64,7 +64,7 @@ __all__ = [
 ]
 
 #: Nodes in the read-off stencil (a quintic).
-STENCIL = _pairkernels.STENCIL
+STENCIL = _kernels.STENCIL
 #: Relative volatility bump for vega: ``dv = VOL_BUMP * vol``. The truncation error of the
 #: central difference, ``dv^2 / 6 * d3V/dvol3``, stays below 1.5e-4 of vega over typical
 #: contracts; a smaller bump divides the grid's non-smooth dependence on the inputs (nodes
@@ -150,11 +150,11 @@ def read_at_spot(
 
     Notes
     -----
-    The rule is compiled (:func:`stopline._pairkernels.read_off`) and shared with the one-call
+    The rule is compiled (:func:`stopline._kernels.read_off`) and shared with the one-call
     price of a Richardson pair.
     """
     put_side = bool(is_put) if is_put is not None else bool(payoff[0] > 0.0)
-    return GridReadout(*_pairkernels.read_off(
+    return GridReadout(*_kernels.read_off(
         np.ascontiguousarray(values, dtype=np.float64),
         np.ascontiguousarray(payoff, dtype=np.float64), float(x_min), float(h), float(x_spot), float(strike), bool(american),
         float(x_boundary), put_side, float(pv),

@@ -23,7 +23,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import _pairkernels
+from . import _kernels
 from ._types import FloatArray
 
 __all__ = [
@@ -160,7 +160,7 @@ def build_space_grid(
     """
     if (points_per_sd is None) == (n_points is None):
         raise ValueError("give exactly one of points_per_sd and n_points")
-    x_min, h, n, k = _pairkernels.space_layout(
+    x_min, h, n, k = _kernels.space_layout(
         float(x_spot), float(sd), float(drift), float(width_sd),
         math.nan if points_per_sd is None else float(points_per_sd),
         -1 if n_points is None else int(n_points), float(h_max),

@@ -32,7 +32,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import _pairkernels
+from . import _kernels
 from ._types import FloatArray
 from .grid import TimeGrid
 from .termstructure import Curve, PiecewiseConstant, curve_values
@@ -100,7 +100,7 @@ def coefficients(
 def choose_frame(sd: float, drift: float, h: float, vol: float, mu: float) -> str:
     """Frame "y" where frame "x" would be non-monotone (``|mu| h > vol^2``) on spacing ``h``
     or would spend most of its nodes on the forward's path (``|drift| > 4 sd``); else "x"."""
-    return "y" if _pairkernels.frame_y_needed(sd, drift, h, vol, mu) else "x"
+    return "y" if _kernels.frame_y_needed(sd, drift, h, vol, mu) else "x"
 
 
 def plan_steps(
@@ -160,7 +160,7 @@ def _plan_flat(
     """:func:`plan_steps` for flat data: the same numbers, without per-step curve look-ups."""
     plan = np.empty((7, time.dt.shape[0]))
     coef = coefficients(h, rate, div_yield, vol, frame)
-    _pairkernels.flat_plan(time.tau, coef, rate, div_yield, vol, frame == "y", plan)
+    _kernels.flat_plan(time.tau, coef, rate, div_yield, vol, frame == "y", plan)
     lo, di, up, df_r, df_q, shift, scale = plan
     return StepPlan(
         tau=time.tau, dt=time.dt, theta=time.theta, lo=lo, di=di, up=up, df_r=df_r, df_q=df_q,

@@ -7,7 +7,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from . import _pairkernels
+from . import _kernels
 from ._types import FloatArray
 from ._validate import check_choice
 from .contract import Option
@@ -266,7 +266,7 @@ def _resolve_grid(
         name = check_choice("accuracy", accuracy, tuple(PRESETS))
         preset = PRESETS[name]
         levels = preset.time_levels // 2
-        # the layout rule shared with the one-call pair (_pairkernels.price_pair)
+        # the layout rule shared with the one-call pair (_kernels.price_pair)
         x_min, h, n, k_idx, frame_y = _preset_layout(*args, preset)
         space = SpaceGrid(x_min, h, n, k_idx)
     # cash dividends are applied in frame "x" (the dropped spot of a node is a fixed node)
@@ -288,8 +288,8 @@ def _preset_layout(
 ) -> tuple[float, float, int, int, bool]:
     """Coarse grid of a preset's pair: ``(x_min, h, n, strike_index, frame_y)``, ``frame_y``
     True when frame "x" does not suit the problem (see
-    :func:`stopline._pairkernels.preset_layout`)."""
-    x_min, h, n, k_idx, frame_y = _pairkernels.preset_layout(
+    :func:`stopline._kernels.preset_layout`)."""
+    x_min, h, n, k_idx, frame_y = _kernels.preset_layout(
         float(x_spot), float(expiry), float(rate), float(div_yield), float(vol), bool(american),
         float(preset.width_sd), float(preset.points_per_sd), float(preset.max_spacing),
         MAX_COARSE_NODES, frame == "y",
@@ -508,7 +508,7 @@ def price(
     n_b = fine.report.boundary_x.shape[0]
     raw, spot_b = np.empty(n_b), np.empty(n_b)
     # with flat inputs and no dividends the true boundary is monotone in time to expiry
-    _pairkernels.boundary_spots(fine.report.boundary_x, k, flat, option.is_put, raw, spot_b)
+    _kernels.boundary_spots(fine.report.boundary_x, k, flat, option.is_put, raw, spot_b)
     boundary = ExerciseBoundary(fine.boundary_times.copy(), spot_b, raw)
     stats = SolveStats(
         space_points=space_f.n,
@@ -562,7 +562,7 @@ def _domain(strike: float, x_min: float, h: float, n: int) -> tuple[float, float
 def _price_pair(
     option: Option, market: Market, t: float, accuracy: str, greeks: str
 ) -> Result | None:
-    """:func:`price` in one kernel call (:func:`stopline._pairkernels.price_pair`), or None
+    """:func:`price` in one kernel call (:func:`stopline._kernels.price_pair`), or None
     where it does not apply.
 
     It applies with flat rate, yield and vol, no cash dividends, a preset, the direct sweep
@@ -589,10 +589,10 @@ def _price_pair(
     unit_c = unit_time_grid(levels)
     unit_f = unit_time_grid(2 * levels)
     tangents = greeks == "full" and american
-    out = np.empty(_pairkernels.PAIR_OUT)
+    out = np.empty(_kernels.PAIR_OUT)
     m_f = unit_f[0].shape[0]
     bnd = np.empty((3, m_f))
-    _pairkernels.price_pair(
+    _kernels.price_pair(
         is_put, american, t, rate, q, vol, x_spot, k, x_min, h, n, k_idx,
         coefficients(h, rate, q, vol), coefficients(0.5 * h, rate, q, vol), *unit_c, *unit_f,
         2 if tangents else 0, out, bnd[0], bnd[1], bnd[2],

@@ -12,7 +12,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from . import _kernels, _pairkernels
+from . import _kernels
 from ._types import FloatArray
 from .contract import Option
 from .dividends import dividend_schedule, present_value
@@ -159,7 +159,7 @@ def payoff_on(
     """Exercise value / strike on the nodes at a level where ``S / K = e^y shift``
     (``ex``: ``e^y`` on the nodes, if already at hand)."""
     out = np.empty(space.n)
-    _pairkernels.payoff_nodes(
+    _kernels.payoff_nodes(
         node_exp(space) if ex is None else ex, is_put, float(shift), space.strike_index, out
     )
     return out
@@ -167,7 +167,7 @@ def payoff_on(
 
 def node_exp(space: SpaceGrid) -> FloatArray:
     """``e^x`` on the nodes of ``space``: the spot / strike each stands for in frame "x"."""
-    return _pairkernels.node_exp(space.x_min, space.h, space.n)
+    return _kernels.node_exp(space.x_min, space.h, space.n)
 
 
 def solve(
@@ -228,7 +228,7 @@ def solve_with_tangents(
     n_steps = plan.dt.shape[0]
     dco = np.empty((2, 3, n_steps))
     dfar = np.empty((2, 2, n_steps))
-    _pairkernels.tangent_coefficients(
+    _kernels.tangent_coefficients(
         space.h, problem.vol, problem.is_put, problem.american, ex[0], ex[-1], plan.tau,
         plan.df_r, plan.df_q, dco, dfar,
     )

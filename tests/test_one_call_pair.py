@@ -8,7 +8,7 @@ import math
 import numpy as np
 import pytest
 
-from stopline import Market, Option, PiecewiseConstant, _pairkernels, pricing
+from stopline import Market, Option, PiecewiseConstant, _kernels, pricing
 from stopline.pricing import MAX_COARSE_NODES, price
 
 
@@ -158,7 +158,7 @@ def test_space_layout_matches_twin(rng: np.random.Generator) -> None:
                 float(rng.uniform(-1, 1)), float(rng.uniform(3, 7)), float(rng.uniform(4, 60)),
                 int(rng.choice([-1, 41, 200])), float(rng.choice([math.inf, 0.01])),
                 int(rng.choice([-1, 500])), bool(rng.integers(2)))
-        x_min, h, n, k = _pairkernels.space_layout(*args)
+        x_min, h, n, k = _kernels.space_layout(*args)
         tx, th, tn, tk = _twin_layout(*args)
         assert (n, k) == (tn, tk)
         assert x_min == pytest.approx(tx, rel=1e-15, abs=1e-15) and h == pytest.approx(th, rel=1e-15)
@@ -174,7 +174,7 @@ def test_decay_length_is_the_perpetual_exponents_reciprocal(rng: np.random.Gener
         mu = r - q - 0.5 * vol * vol
         roots = np.roots([0.5 * vol * vol, mu, -r])
         want = min((1.0 / abs(x) for x in roots.real if abs(x) > 0), default=math.inf)
-        assert _pairkernels.decay_length(r, mu, vol) == pytest.approx(want, rel=1e-9)
+        assert _kernels.decay_length(r, mu, vol) == pytest.approx(want, rel=1e-9)
 
 
 @pytest.mark.parametrize("frame_y", [False, True])
@@ -182,7 +182,7 @@ def test_flat_plan_matches_twin(frame_y: bool) -> None:
     tau = np.linspace(0.01, 2.0, 17)
     r, q, vol = 0.05, 0.02, 0.3
     out = np.empty((7, tau.size))
-    _pairkernels.flat_plan(tau, (1.0, -2.0, 3.0), r, q, vol, frame_y, out)
+    _kernels.flat_plan(tau, (1.0, -2.0, 3.0), r, q, vol, frame_y, out)
     np.testing.assert_array_equal(out[:3], np.array([[1.0], [-2.0], [3.0]]) * np.ones(tau.size))
     np.testing.assert_allclose(out[3], np.exp(-r * tau), rtol=1e-15)
     np.testing.assert_allclose(out[4], np.exp(-q * tau), rtol=1e-15)
@@ -198,7 +198,7 @@ def test_tangent_coefficients_match_twin(is_put: bool) -> None:
     df_r, df_q = np.exp(-r * tau), np.exp(-q * tau)
     s_lo, s_hi = math.exp(-1.2), math.exp(1.4)
     dco, dfar = np.empty((2, 3, 9)), np.empty((2, 2, 9))
-    _pairkernels.tangent_coefficients(h, vol, is_put, False, s_lo, s_hi, tau, df_r, df_q, dco, dfar)
+    _kernels.tangent_coefficients(h, vol, is_put, False, s_lo, s_hi, tau, df_r, df_q, dco, dfar)
     # d/d vol and d/d rate of lo = s^2/(2h^2) - mu/(2h), di = -s^2/h^2 - r,
     # up = s^2/(2h^2) + mu/(2h), mu = r - q - s^2/2
     np.testing.assert_allclose(dco[0, :, 0], [vol / h**2 + 0.5 * vol / h, -2 * vol / h**2,
@@ -212,7 +212,7 @@ def test_tangent_coefficients_match_twin(is_put: bool) -> None:
         np.testing.assert_allclose(dfar[1, end], want, rtol=1e-15)
     assert np.any(dfar[1] != 0.0)
     # American: where the intrinsic value beats the forward the far value does not move with r
-    _pairkernels.tangent_coefficients(h, vol, is_put, True, s_lo, s_hi, tau, df_r, df_q, dco, dfar)
+    _kernels.tangent_coefficients(h, vol, is_put, True, s_lo, s_hi, tau, df_r, df_q, dco, dfar)
     np.testing.assert_array_equal(dfar[1, 0 if is_put else 1], 0.0)
 
 
@@ -261,7 +261,7 @@ def test_read_off_matches_twin(is_put: bool, rng: np.random.Generator) -> None:
     for _ in range(40):
         xs = float(rng.uniform(x_min + 0.1, x_min + h * (n - 1) - 0.1))
         for american in (False, True):
-            got = _pairkernels.read_off(values, payoff, x_min, h, xs, 100.0, american, x_b,
+            got = _kernels.read_off(values, payoff, x_min, h, xs, 100.0, american, x_b,
                                         is_put, 0.0)
             want = _twin_read(values, payoff, x_min, h, xs, 100.0, american, x_b, is_put)
             assert got[3] == want[3]
@@ -272,9 +272,9 @@ def test_monotone_fit_into_keeps_nans_and_pools_violators() -> None:
     # Source: pool-adjacent-violators (Ayer et al. 1955): a violating pair takes its mean
     y = np.array([np.nan, 5.0, 4.0, 4.2, np.nan, 3.0, 1.0])
     out = np.empty_like(y)
-    _pairkernels.monotone_fit_into(y, True, out)
+    _kernels.monotone_fit_into(y, True, out)
     np.testing.assert_array_equal(out, [np.nan, 5.0, 4.1, 4.1, np.nan, 3.0, 1.0])
     raw, spot = np.empty(3), np.empty(3)
-    _pairkernels.boundary_spots(np.array([np.nan, 0.0, math.log(0.5)]), 80.0, False, True, raw, spot)
+    _kernels.boundary_spots(np.array([np.nan, 0.0, math.log(0.5)]), 80.0, False, True, raw, spot)
     np.testing.assert_allclose(raw, [np.nan, 80.0, 40.0], rtol=1e-15)
     np.testing.assert_array_equal(spot, raw)
