@@ -284,9 +284,15 @@ def march_direct_tangents(
     n_par = tan.shape[0]
     v_old = np.empty(n if n_par else 0)
     trhs = np.empty(n if n_par else 0)
+    # the projected substitution's range, as plain integers (literal arguments would compile
+    # a second copy of it)
+    s_first = 1 if is_put else n - 2
+    s_stop = n - 1 if is_put else 0
+    s_step = 1 if is_put else -1
     for k in range(dt.shape[0]):
         if n_par:
-            v_old[:] = v
+            for j in range(n):  # a loop, not v_old[:] = v: slice assignment compiles slowly
+                v_old[j] = v[j]
         a, b, c, vl, vh = _begin_step(
             k, v, ex, payoff, rhs, dt, theta, lo, di, up, df_r, df_q, shift, scale, is_put,
             american,
@@ -333,7 +339,7 @@ def march_direct_tangents(
                 rhs[1] = r * wc
             v[0] = vl
             if american:
-                _substitute_projected(v, rhs, aw, payoff, 1, n - 1, 1)
+                _substitute_projected(v, rhs, aw, payoff, s_first, s_stop, s_step)
             else:
                 for j in range(1, n - 1):
                     v[j] = rhs[j] - aw[j] * v[j - 1]
@@ -376,7 +382,7 @@ def march_direct_tangents(
                 rhs[i] = r * wc
             v[n - 1] = vh
             if american:
-                _substitute_projected(v, rhs, aw, payoff, n - 2, 0, -1)
+                _substitute_projected(v, rhs, aw, payoff, s_first, s_stop, s_step)
             else:
                 for j in range(n - 2, 0, -1):
                     v[j] = rhs[j] - aw[j] * v[j + 1]
