@@ -69,7 +69,9 @@ def _assert_same(a: pricing.Result, b: pricing.Result) -> None:
     assert a.boundary.spot.shape == b.boundary.spot.shape
 
 
-@pytest.mark.parametrize(("accuracy", "n", "seed"), [("fast", 100, 11), ("standard", 24, 12)])
+@pytest.mark.parametrize(
+    ("accuracy", "n", "seed"), [("fast", 100, 11), ("standard", 24, 12), ("fine", 4, 13)]
+)
 def test_one_call_pair_equals_general_path_on_typical_contracts(
     monkeypatch: pytest.MonkeyPatch, accuracy: str, n: int, seed: int
 ) -> None:

@@ -415,6 +415,14 @@ def price(
     ConvergenceError
         If PSOR reaches its iteration cap.
 
+    Notes
+    -----
+    With flat rate, yield and vol, no cash dividends, a preset and the direct sweep (and
+    unless the volatility is so low for the drift that the drift-free frame is needed), both
+    grids are solved and read in one compiled call (:func:`stopline._kernels.price_pair`);
+    it applies the same rules as the general path and gives the same numbers, about three
+    times faster at "fast".
+
     References
     ----------
     Crank, J. and Nicolson, P. (1947); Rannacher, R. (1984); Richardson, L. F. (1911).
