@@ -265,7 +265,7 @@ def _resolve_grid(
     else:
         name = check_choice("accuracy", accuracy, tuple(PRESETS))
         preset = PRESETS[name]
-        levels = preset.time_levels // 2
+        levels = _coarse_levels(preset)
         # the layout rule shared with the one-call pair (_kernels.price_pair)
         x_min, h, n, k_idx, frame_y = _preset_layout(*args, preset)
         space = SpaceGrid(x_min, h, n, k_idx)
@@ -280,6 +280,11 @@ def _resolve_grid(
             # steps short enough that the exercise value's kink moves about a node per step
             levels = max(levels, min(math.ceil(abs(drift) / space.h), 20 * levels))
     return space, time_grid_for(problem, levels), name
+
+
+def _coarse_levels(preset: AccuracyPreset) -> int:
+    """Graded time intervals of the coarse grid of a preset's pair (frame "x")."""
+    return preset.time_levels // 2
 
 
 def _preset_layout(
@@ -593,7 +598,7 @@ def _price_pair(
     x_min, h, n, k_idx, frame_y = _preset_layout(x_spot, t, rate, q, vol, american, preset)
     if frame_y:
         return None
-    levels = preset.time_levels // 2
+    levels = _coarse_levels(preset)
     unit_c = unit_time_grid(levels)
     unit_f = unit_time_grid(2 * levels)
     tangents = greeks == "full" and american
