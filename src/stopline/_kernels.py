@@ -884,7 +884,9 @@ def decay_length(rate, mu, vol):
     """Length in ``ln S`` over which an American option's premium decays near its boundary.
 
     ``1 / |lambda|`` for the roots of ``vol^2/2 l^2 + mu l - r = 0``, the exponents of the
-    perpetual option (Merton 1973); infinite when there is no real root.
+    perpetual option (Merton 1973); infinite when there is no real root. At low volatility
+    this is far shorter than ``vol sqrt(T)``, and the grid must resolve it rather than the
+    spread of the spot.
     """
     disc = mu * mu + 2.0 * vol * vol * rate
     if disc < 0.0:
