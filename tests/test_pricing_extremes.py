@@ -55,8 +55,11 @@ def test_spot_beyond_the_perpetual_boundary_is_exercised_at_once(
     res = price(Option(kind, k, 5.0), Market(s, r, v, q))
     assert res.price == abs(k - s)
     assert res.delta == (-1.0 if kind == "put" else 1.0)
-    assert res.gamma == res.theta == res.vega == res.rho == 0.0
-    assert any("perpetual" in w for w in res.stats.warnings)
+    assert res.gamma == res.theta == 0.0
+    if v < 0.05:
+        # at low vol (a grid of many nodes) the answer comes without a grid, and says so
+        assert res.vega == res.rho == 0.0
+        assert any("perpetual" in w for w in res.stats.warnings)
     # continuity: just inside the holding region the grid gives nearly the intrinsic value
     inside = star * (1.02 if kind == "put" else 0.98)
     held = price(Option(kind, k, 5.0), Market(inside, r, v, q), greeks="grid")

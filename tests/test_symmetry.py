@@ -51,12 +51,13 @@ def test_deep_in_the_money_european_call_by_parity(m: float, t: float, v: float,
     assert res.price - put.price == pytest.approx(fwd, abs=1e-9 * k)
 
 
-@pytest.mark.parametrize("m,t,v,r,q", [(1.0, 10.0, 1.2, 0.05, 0.08), (3.64, 36.4, 1.12, -0.015, 0.204)])
+@pytest.mark.parametrize("m,t,v,r,q", [(1.0, 10.0, 1.2, 0.05, 0.08), (0.5, 36.4, 1.12, -0.015, 0.204)])
 def test_american_call_equals_symmetric_put_on_the_same_grid(
     m: float, t: float, v: float, r: float, q: float
 ) -> None:
     # McDonald and Schroder (1998), J. Comput. Finance 1(3): C(S, K, r, q) = P(K, S, q, r),
-    # exact; the call is solved on the put's own nodes, so the two differ only by the
+    # exact; with S <= K the call is solved on the put's own nodes (no refinement by
+    # sqrt(S / K)), so the two differ only by the
     # read-off, which interpolates e^x p(-x) instead of p (measured 1.6e-8 of the strike)
     k = 100.0
     s = k * m
@@ -90,3 +91,16 @@ def test_symmetric_american_call_greeks_match_the_put() -> None:
     dn = price(Option("call", k, t), Market(s, r - 1e-3, v, q), greeks="grid").price
     assert c.rho == pytest.approx((up - dn) / 2e-3, rel=1e-2)
     assert all(math.isfinite(x) for x in (c.theta, c.gamma, c.delta))
+
+
+def test_deep_in_the_money_american_call_on_a_refined_put_grid() -> None:
+    # found by the domain study: a call 3.6 times in the money at vol sqrt(T) = 6.8 was
+    # 1.7e-4 of the strike off at "fast"; the put's grid is now refined by sqrt(S / K).
+    # Reference: the same call at "fine" (the study's twice-finer grid agrees with it to
+    # 1.1e-6 of the strike, and with the perpetual value, a close bound here, to 1e-7)
+    k, t, v, r, q = 100.0, 36.43, 1.1215, -0.01475, 0.2041
+    s = 3.6417 * k
+    ref = price(Option("call", k, t), Market(s, r, v, q), accuracy="fine", greeks="grid").price
+    for acc, tol in (("fast", 1e-4), ("standard", 1e-5)):
+        res = price(Option("call", k, t), Market(s, r, v, q), accuracy=acc, greeks="grid")
+        assert res.price == pytest.approx(ref, abs=tol * k), acc

@@ -39,6 +39,8 @@ from .solve import (
     time_grid_for,
 )
 from .symmetry import (
+    PARITY_MIN_MONEYNESS,
+    SYMMETRY_MIN_SD,
     parity_problem,
     solve_parity,
     solve_swapped,
@@ -289,8 +291,11 @@ def _resolve_grid(
             "n_max": MAX_COARSE_NODES,
         }
         eps = NEGLIGIBLE_REACH * preset.target
-    if problem.american and problem.curves is None and not problem.has_events:
-        # an American option with flat data: the grid ends where the far field is known (deep
+    if problem.american and problem.curves is None and not problem.has_events and (
+        refine > 1.0 or _extreme_regime(problem.is_put, True, problem.x_spot, problem.expiry,
+                                        problem.rate, problem.div_yield, problem.vol)
+    ):
+        # an American option with flat data in an extreme regime: the grid ends where the far field is known (deep
         # in the exercise region, or where the option is worth a negligible part of the
         # strike), and stays in frame "x", where the exercise value's kink stays on a node
         lo_lim, hi_lim = _american_limits(problem, mu, eps)
@@ -452,6 +457,35 @@ def _expired(option: Option, market: Market, method: ExerciseMethod, t: float) -
                   stats, option, market, t, "exact")
 
 
+def _extreme(option: Option, market: Market, t: float) -> bool:
+    """Whether a flat, dividend-free contract needs the general path's handling of extreme
+    regimes (calls through puts, American options exercised at once or never early, long
+    volatile lives, short decay lengths or large drifts), which the one-call pair lacks."""
+    if market.dividends or market.has_term_structure:
+        return False
+    return _extreme_regime(option.is_put, option.is_american, math.log(market.spot / option.strike),
+                           t, market.rate, market.div_yield, market.vol)
+
+
+def _extreme_regime(
+    is_put: bool, american: bool, x_spot: float, t: float, r: float, q: float, vol: float
+) -> bool:
+    """:func:`_extreme` on plain numbers (flat data, no cash dividends)."""
+    sd = vol * math.sqrt(t)
+    if not is_put and (sd >= SYMMETRY_MIN_SD or (
+            not american and x_spot >= math.log(PARITY_MIN_MONEYNESS))):
+        return True
+    if not american:
+        return False
+    mu = r - q - 0.5 * vol * vol
+    if sd > LONG_SD or abs(mu * t) > 4.0 * sd:
+        return True
+    if (r <= 0.0 <= q) if is_put else (q <= 0.0 <= r):
+        return sd >= 1.0
+    lam = _perpetual_root(r, mu, vol, is_put)
+    return lam is not None and 10.0 / abs(lam) < sd
+
+
 def _never_exercised(problem: PDEProblem) -> bool:
     """Early exercise is never optimal and the grid is hard: flat data, no cash dividends, a
     put with ``r <= 0 <= q`` or a call with ``q <= 0 <= r`` (then the European value already
@@ -476,7 +510,7 @@ def _perpetual_critical_spot(problem: PDEProblem) -> float | None:
 
 def _exercised_at_once(
     option: Option, market: Market, method: ExerciseMethod, t: float, s_star: float,
-    warnings: list[str],
+    warnings: list[str], greeks: str = "full",
 ) -> Result:
     """Spot at or beyond the perpetual option's critical spot ``s_star``: exercise now.
 
@@ -495,7 +529,8 @@ def _exercised_at_once(
             "grid solved")
     stats = SolveStats(0, 0, 0, 0, 0, method.name, 0, 0, (s, s),
                        warnings=(*warnings, note))
-    return Result(value, -1.0 if put else 1.0, 0.0, 0.0, 0.0, 0.0, 0.0,
+    zero = math.nan if greeks == "grid" else 0.0  # vega and rho, as for any grid-only call
+    return Result(value, -1.0 if put else 1.0, 0.0, 0.0, zero, zero, 0.0,
                   ExerciseBoundary(empty, empty), stats, option, market, t, "exact")
 
 
@@ -641,7 +676,7 @@ def price(
     t = option.time_to_expiry(market.valuation_date)
     if t == 0.0:
         return _expired(option, market, solver, t)
-    if grid is None and solver.name == "direct" and _ONE_CALL:
+    if grid is None and solver.name == "direct" and _ONE_CALL and not _extreme(option, market, t):
         # the common case in one kernel call; None where it does not apply
         result = _price_pair(option, market, t, accuracy, greeks)
         if result is not None:
@@ -676,11 +711,14 @@ def price(
     grid_problem = swapped_problem(problem) if swapped else problem
     grid_problem = parity_problem(problem) if parity else grid_problem
     solve_on = solve_swapped if swapped else (solve_parity if parity else solve)
-    if american and problem.curves is None and not problem.dividend_tau:
+    if american and problem.curves is None and not problem.dividend_tau and _extreme_regime(
+        problem.is_put, True, problem.x_spot, t, problem.rate, problem.div_yield, problem.vol
+    ):
+        # in the extreme regimes (where the grid would be large), no grid at all
         s_star = _perpetual_critical_spot(problem)
         if s_star is not None and (market.spot <= k * s_star if option.is_put
                                    else market.spot >= k * s_star):
-            return _exercised_at_once(option, market, solver, t, k * s_star, warnings)
+            return _exercised_at_once(option, market, solver, t, k * s_star, warnings, greeks)
     refine = math.sqrt(max(market.spot / k, 1.0)) if swapped else 1.0
     space_c, time_c, acc_name = _resolve_grid(grid_problem, accuracy, grid, refine)
     if space_c.n >= MAX_COARSE_NODES:
@@ -734,17 +772,7 @@ def price(
         vega, rho = european_vega_rho(market.spot, value, delta, gamma, problem.vol, t)
     theta = theta_at_valuation(problem, market.spot, k, value, delta, gamma, rf.exercised)
     err = abs(rf.value - rc.value) / 3.0
-    # numerical health: the two grids disagree by more than the preset promises, or a number
-    # came out non-finite (neither is expected anywhere in the documented domain)
-    promised = max(PRESETS[acc_name].target if acc_name in PRESETS else 0.0, EVERYWHERE)
-    if err > promised * k:
-        warnings.append(
-            f"the two grids differ by {3 * err / k:.1e} of the strike (error estimate "
-            f"{err / k:.1e}), above the {promised:g} promised: the price may be off by more; "
-            "try accuracy='fine'"
-        )
-    if not all(math.isfinite(x) for x in (value, delta, gamma, theta, err)):
-        warnings.append("a non-finite number came out of the grid: do not use this result")
+    warnings += _health_warnings(err, k, acc_name, (value, delta, gamma, theta))
     n_b = fine.report.boundary_x.shape[0]
     raw, spot_b = np.empty(n_b), np.empty(n_b)
     # with flat inputs and no dividends the true boundary is monotone in time to expiry
@@ -792,6 +820,25 @@ def _richardson(
     dmax = max(1.0, math.exp(-div_yield * t))
     delta = min(max(delta, -dmax), 0.0) if is_put else min(max(delta, 0.0), dmax)
     return value, delta, gamma
+
+
+def _health_warnings(
+    err: float, strike: float, acc_name: str, numbers: tuple[float, ...]
+) -> list[str]:
+    """Numerical health: the two grids disagree by more than the preset promises (its target,
+    or 1e-5 of the strike if looser), or a number came out non-finite; neither is expected
+    anywhere in the documented domain."""
+    out = []
+    promised = max(PRESETS[acc_name].target if acc_name in PRESETS else 0.0, EVERYWHERE)
+    if err > promised * strike:
+        out.append(
+            f"the two grids differ by {3 * err / strike:.1e} of the strike (error estimate "
+            f"{err / strike:.1e}), above the {promised:g} promised: the price may be off by "
+            "more; try accuracy='fine'"
+        )
+    if not all(math.isfinite(x) for x in (*numbers, err)):
+        out.append("a non-finite number came out of the grid: do not use this result")
+    return out
 
 
 def _domain(strike: float, x_min: float, h: float, n: int) -> tuple[float, float]:
@@ -850,9 +897,10 @@ def _price_pair(
     else:
         vega, rho = _extrapolate(o[8], o[10]), _extrapolate(o[9], o[11])
     theta = theta_from_pde(market.spot, value, delta, gamma, rate, q, vol, rf.exercised)
-    warnings = () if n < MAX_COARSE_NODES else (_CAP_WARNING,)
+    warnings = ([] if n < MAX_COARSE_NODES else [_CAP_WARNING]) + _health_warnings(
+        abs(rf.value - rc.value) / 3.0, k, name, (value, delta, gamma, theta))
     stats = SolveStats(2 * n - 1, 2 * levels, m_f, n, levels, "direct", 0, 0,
-                       _domain(k, x_min, 0.5 * h, 2 * n - 1), warnings=warnings)
+                       _domain(k, x_min, 0.5 * h, 2 * n - 1), warnings=tuple(warnings))
     return Result(value, delta, gamma, theta, vega, rho, abs(rf.value - rc.value) / 3.0,
                   ExerciseBoundary(t * unit_f[0], bnd[2], bnd[1]), stats, option, market, t,
                   name)

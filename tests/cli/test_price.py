@@ -57,13 +57,13 @@ def test_bad_input_exits_nonzero_with_one_clear_line(change: list[str], needle: 
 
 
 def test_price_shows_how_a_degenerate_input_was_answered() -> None:
-    # a put far below the perpetual critical spot (Merton 1973) is exercised at once: the
-    # table says so in a warning line and the JSON lists it
-    args = ["price", "--kind", "put", "--spot", "40", "--strike", "100", "--expiry", "5",
-            "--rate", "0.08", "--vol", "0.2"]
+    # a put below the perpetual critical spot (Merton 1973) at vol 1 % is exercised at once:
+    # the table says so in a warning line and the JSON lists it
+    args = ["price", "--kind", "put", "--spot", "90", "--strike", "100", "--expiry", "5",
+            "--rate", "0.08", "--vol", "0.01"]
     res = runner.invoke(app, args)
     assert res.exit_code == 0, res.output
     assert "warning:" in res.output and "perpetual" in res.output
-    assert "60.000000" in res.output
+    assert "10.000000" in res.output
     obj = json.loads(runner.invoke(app, [*args, "--json"]).stdout)
     assert any("perpetual" in w for w in obj["warnings"])
