@@ -77,7 +77,7 @@ def test_bounds_and_finiteness(kind, k, m, t, v, r, q) -> None:
     assert math.isfinite(am.error_estimate) and math.isfinite(eu.error_estimate)
 
 
-@SETTINGS
+@settings(SETTINGS, max_examples=240)
 @given(kinds, moneyness, expiries, vols, rates, yields)
 def test_monotone_and_convex_in_spot(kind, m, t, v, r, q) -> None:
     k = 100.0
@@ -93,7 +93,7 @@ def test_monotone_and_convex_in_spot(kind, m, t, v, r, q) -> None:
     assert p[0] + p[2] - 2 * p[1] >= -2 * slack
 
 
-@SETTINGS
+@settings(SETTINGS, max_examples=240)
 @given(kinds, moneyness, expiries, st.floats(0.01, 4.5), rates, yields)
 # found: a call 11 x in the money at vol 437 %, T 19 -> 22.8: "standard" prices 1.5e-5 x K
 # apart the wrong way. Cause: too few time levels for a life this long and volatile (space
