@@ -61,13 +61,17 @@ class DirectSweep:
 
     def march(
         self, v: FloatArray, ex: FloatArray, space: SpaceGrid, plan: StepPlan,
-        is_put: bool, american: bool,
+        is_put: bool, american: bool, fitted: bool = False,
     ) -> MarchReport:
-        """Advance ``v`` (in place) through every step of ``plan``; ``ex = exp(space.x)``."""
+        """Advance ``v`` (in place) through every step of ``plan``; ``ex = exp(space.x)``.
+
+        ``fitted``: fit the exercise boundary inside its cell and take BDF2 steps (see
+        :func:`stopline.solve.fitted_boundary`).
+        """
         bnd = np.empty(plan.dt.shape[0])
         _kernels.march_direct(
             v, ex, space.x_min, space.h, plan.dt, plan.theta, plan.lo, plan.di, plan.up,
-            plan.df_r, plan.df_q, plan.shift, plan.scale, is_put, american, bnd,
+            plan.df_r, plan.df_q, plan.shift, plan.scale, is_put, american, bnd, fitted,
         )
         return MarchReport(bnd)
 
@@ -102,9 +106,10 @@ class ProjectedSOR:
 
     def march(
         self, v: FloatArray, ex: FloatArray, space: SpaceGrid, plan: StepPlan,
-        is_put: bool, american: bool,
+        is_put: bool, american: bool, fitted: bool = False,
     ) -> MarchReport:
-        """Advance ``v`` (in place) through every step of ``plan``; ``ex = exp(space.x)``."""
+        """Advance ``v`` (in place) through every step of ``plan``; ``ex = exp(space.x)``;
+        ``fitted`` as for :meth:`DirectSweep.march`."""
         n_steps = plan.dt.shape[0]
         bnd = np.empty(n_steps)
         iters = np.zeros(n_steps, dtype=np.int64)
@@ -112,7 +117,7 @@ class ProjectedSOR:
         failed = _kernels.march_psor(
             v, ex, space.x_min, space.h, plan.dt, plan.theta, plan.lo, plan.di, plan.up,
             plan.df_r, plan.df_q, plan.shift, plan.scale, is_put, american, bnd, omega, self.tol,
-            self.max_iter, iters,
+            self.max_iter, iters, fitted,
         )
         if failed >= 0:
             raise ConvergenceError(
