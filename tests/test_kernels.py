@@ -117,8 +117,7 @@ def test_march_direct_matches_numpy_twin(small_case, is_put: bool, american: boo
 
 
 @pytest.mark.parametrize("is_put", [True, False])
-@pytest.mark.parametrize("fitted", [False, True])
-def test_march_psor_matches_direct_kernel_and_twin(small_case, is_put: bool, fitted: bool) -> None:
+def test_march_psor_matches_direct_kernel_and_twin(small_case, is_put: bool) -> None:
     # common practice: PSOR converges to the unique solution of the same problem.
     space, time, plan, coef = small_case
     payoff = payoff_on(space, is_put)
@@ -127,9 +126,9 @@ def test_march_psor_matches_direct_kernel_and_twin(small_case, is_put: bool, fit
     iters = np.zeros(plan.dt.size, dtype=np.int64)
     failed = _kernels.march_psor(v, np.exp(space.x), space.x_min, space.h, plan.dt, plan.theta,
                                  plan.lo, plan.di, plan.up, plan.df_r, plan.df_q, plan.shift, plan.scale,
-                                 is_put, True, bnd, -1.0, 1e-14, 100000, iters, fitted)
+                                 is_put, True, bnd, -1.0, 1e-14, 100000, iters)
     assert failed == -1 and iters.min() >= 1
-    twin = _twin_march(payoff, space.x_min, space.h, plan, is_put, True, fitted, coef)
+    twin = _twin_march(payoff, space.x_min, space.h, plan, is_put, True)
     np.testing.assert_allclose(v, twin, rtol=0, atol=1e-11)
 
 

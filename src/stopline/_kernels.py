@@ -672,15 +672,12 @@ def _substitute_fitted(v, rhs, aw, payoff, start, stop, step, ex, ka, kb, h):
 @njit(cache=True)
 def march_psor(
     v, ex, x0, h, dt, theta, lo, di, up, df_r, df_q, shift, scale, is_put, american, bnd,
-    omega, tol, max_iter, iters, fitted,
+    omega, tol, max_iter, iters,
 ):
     """March ``v`` through all steps with projected successive over-relaxation.
 
     Same arguments as :func:`march_direct`, plus:
 
-    fitted : bool
-        As for :func:`march_direct_tangents`: BDF2 steps after the implicit start, and the
-        ghost value at a held node next to an exercised one.
     omega : float
         Over-relaxation factor in (0, 2); a value <= 0 asks for the optimal factor of the
         unprojected system, ``2 / (1 + sqrt(1 - rho_J^2))`` with ``rho_J`` the spectral radius
@@ -705,23 +702,12 @@ def march_psor(
     n = v.shape[0]
     rhs = np.empty(n)
     payoff = np.empty(n)
-    v_old = np.empty(n if fitted else 0)
-    v_prev = np.empty(n if fitted else 0)
     failed = -1
-    ka = kb = 0.0
     for k in range(dt.shape[0]):
-        if fitted:
-            if k > 0:
-                v_prev[:] = v_old
-            v_old[:] = v
-            ka, kb = pasting_curvature(lo[k], di[k], up[k], h, is_put)
         a, b, c, vl, vh = _begin_step(
             k, v, ex, payoff, rhs, dt, theta, lo, di, up, df_r, df_q, shift, scale, is_put,
-            american, v_prev, fitted,
+            american, rhs, False,
         )
-        # the ghost's side: a put's exercised neighbour is below, a call's above
-        beta = -(a if is_put else c) / b
-        nb = -1 if is_put else 1
         v[0] = vl
         v[n - 1] = vh
         om = omega
@@ -738,19 +724,6 @@ def march_psor(
             err = 0.0
             for j in range(1, n - 1):
                 gs = (rhs[j] - a * v[j - 1] - c * v[j + 1]) * inv_b
-                i = j + nb
-                if fitted and 1 <= i <= n - 2 and payoff[i] > 0.0 and v[i] <= payoff[i]:
-                    # the first held node past the exercised run: ghost value, as in
-                    # _substitute_fitted, solved for this node's own value
-                    kap = ka + kb * ex[j]
-                    if kap > 0.0 and 0.0 < beta < 1.0:
-                        s2 = kap * h * h
-                        gap = gs - payoff[j]
-                        if gap + beta * s2 <= 0.0:
-                            gs = payoff[j]
-                        elif gap < s2:
-                            u = ghost_gap(gap, beta, math.sqrt(s2))
-                            gs = payoff[j] + u * u
                 y = v[j] + om * (gs - v[j])
                 if american and y < payoff[j]:
                     y = payoff[j]
