@@ -83,7 +83,7 @@ class AccuracyPreset:
 #: and time, and extrapolates (Richardson); see ``validation/`` for the measured errors.
 PRESETS: dict[str, AccuracyPreset] = {
     "fast": AccuracyPreset("fast", 1e-4, 16.0, 4.0, 32, 0.04),
-    "standard": AccuracyPreset("standard", 1e-6, 24.0, 5.5, 120, 0.016),
+    "standard": AccuracyPreset("standard", 1e-6, 32.0, 5.5, 100, 0.02),
     "fine": AccuracyPreset("fine", 1e-8, 120.0, 7.0, 600, 0.0015),
 }
 

@@ -308,11 +308,7 @@ def _solve_with_dividends(
                 )
                 v[:] = work
         else:
-            _kernels.dividend_jump(
-                v, payoff, space.x_min, space.h, at_expiry, 0.0, 1.0, 1.0, problem.is_put,
-                problem.american, work,
-            )
-            v[:] = work
+            v[:] = _payoff_after_drop(space, problem.is_put, at_expiry, problem.american)
     stops = sorted(set(events) | {tau.shape[0] - 1})
     parts: list[MarchReport] = []
     # boundary per step, plus one entry at each ex-date for the state just before it
@@ -396,6 +392,48 @@ def _crossing(gap: FloatArray, exercise: FloatArray, space: SpaceGrid, is_put: b
             return float(space.x_min + (prev + (j - prev) * frac) * space.h)
         prev = j
     return math.nan
+
+
+def _payoff_after_drop(space: SpaceGrid, is_put: bool, d: float, american: bool) -> FloatArray:
+    """Value / strike just before an ex-date on the expiry date (spot model), on the nodes.
+
+    The payoff of the dropped spot, ``max(+-(1 - max(e^x - d, 0)), 0)``, and for an American
+    option the larger of that and the exercise value at ``e^x``, in closed form. Its kink at
+    ``e^x = 1 + d`` (and a put's at ``e^x = d``) lies between nodes: the node whose cell holds
+    one takes the cell average (two-point Gauss on each side of the kink), which keeps the
+    error a smooth function of the spacing (Pooley, Vetzal and Forsyth 2003). Interpolating
+    the payoff on the nodes instead (as at an ex-date inside the option's life) gave an
+    error that depends on where the kink falls: 3.6e-6 x K for a European call at spacing
+    0.016 where the identity with a call struck at ``K + d`` is exact.
+
+    References
+    ----------
+    Pooley, D. M., Vetzal, K. R. and Forsyth, P. A. (2003), Convergence remedies for
+    non-smooth payoffs in option pricing, J. Comput. Finance 6(4).
+    """
+
+    def value(x: FloatArray) -> FloatArray:
+        s = np.exp(x)
+        out = np.clip(1.0 + d - s, 0.0, 1.0) if is_put else np.maximum(s - d - 1.0, 0.0)
+        if american:
+            out = np.maximum(out, np.maximum(1.0 - s, 0.0) if is_put else np.maximum(s - 1.0, 0.0))
+        return out
+
+    x = space.x
+    h = space.h
+    out = value(x)
+    g = 0.5 / math.sqrt(3.0)
+    kinks = [math.log1p(d)] + ([math.log(d)] if is_put else [])
+    for xk in kinks:
+        j = int(round((xk - space.x_min) / h))
+        if not 0 <= j < space.n or abs(x[j] - xk) <= 1e-12:
+            continue  # outside the grid, or on a node (the point value is then right)
+        total = 0.0
+        for lo, hi in ((x[j] - 0.5 * h, xk), (xk, x[j] + 0.5 * h)):
+            c, half = 0.5 * (lo + hi), 0.5 * (hi - lo)
+            total += half * float(value(np.array([c - 2.0 * g * half, c + 2.0 * g * half])).sum())
+        out[j] = total / h
+    return out
 
 
 def _shifted_payoff(space: SpaceGrid, is_put: bool, pv: float) -> FloatArray:
