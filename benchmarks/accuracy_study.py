@@ -25,7 +25,6 @@ from __future__ import annotations
 import argparse
 import hashlib
 import json
-import math
 import os
 import sys
 import tempfile
@@ -142,7 +141,7 @@ def main(argv: list[str] | None = None) -> None:
           f"reference price(grid=GridSpec{REF_GRID}), within {max(checks):.1e} x K of "
           f"GridSpec{CHECK_GRID} on the first {len(checks)}")
     head = (f"| {'preset':8} | {'subset':12} | {'n':>5} | {'max err/K':>9} | {'p99':>8} | "
-            f"{'median':>8} | {'> target':>8} | {'err > est':>9} |")
+            f"{'median':>8} | {'> target':>8} | {'err > est':>9} | {'max err/est':>11} |")
     print(head)
     print("|" + "|".join("-" * (len(c)) for c in head.split("|")[1:-1]) + "|")
     subsets = [("all", np.ones(len(cases), bool))]
@@ -154,9 +153,10 @@ def main(argv: list[str] | None = None) -> None:
             e, s = err[mask], est[mask]
             miss = int((e > TARGETS[name]).sum())
             under = int((e > s).sum())
+            ratio = float(np.max(e / np.maximum(s, 1e-300)))
             print(f"| {name:8} | {label:12} | {mask.sum():5d} | {e.max():9.1e} | "
                   f"{np.percentile(e, 99):8.1e} | {np.median(e):8.1e} | {miss:8d} | "
-                  f"{under:9d} |")
+                  f"{under:9d} | {ratio:11.2f} |")
         if args.worst:
             order = np.argsort(-err)[: args.worst]
             for i in order:
@@ -164,7 +164,8 @@ def main(argv: list[str] | None = None) -> None:
                 print(f"    {c['group']:7} {c['kind']:4} S={c['spot']:.2f} T={c['expiry']:.3f} "
                       f"r={c['rate']:.4f} q={c['div_yield']:.4f} vol={c['vol']:.4f}: "
                       f"err {err[i]:.2e}, estimate {est[i]:.2e}")
-    print("\n'err > est': contracts whose true error exceeds the reported error_estimate.")
+    print("\n'err > est': contracts whose true error exceeds the reported error_estimate; "
+          "'max err/est': the largest ratio of the two.")
 
 
 if __name__ == "__main__":

@@ -345,22 +345,24 @@ def march_direct_tangents(
     aw = np.empty(n)  # off-diagonal x pivot, the substitution's coefficient
     payoff = np.empty(n)
     n_par = tan.shape[0]
-    v_old = np.empty(n if (n_par or fitted) else 0)
-    v_prev = np.empty(n if fitted else 0)  # the level before v_old (BDF2)
+    # fitted: the step writes its values into the buffer of the level before last (free
+    # once the right-hand side is formed) and the two buffers swap roles, so that the BDF2
+    # history costs no copy; ``cur`` holds the last level, ``prev`` the one before
+    cur = v
+    prev = np.empty(n if fitted else 0)
+    in_v = True  # whether cur is the caller's array
+    v_old = np.empty(n if (n_par and not fitted) else 0)
     t_prev = np.empty((n_par if fitted else 0, n))
     trhs = np.empty(n if n_par else 0)
     jg, ug, kg = -1, 0.0, 0.0
     for k in range(dt.shape[0]):
-        if fitted:
-            if k > 0:
-                v_prev[:] = v_old
-            v_old[:] = v
-        elif n_par:
-            v_old[:] = v
+        if n_par and not fitted:
+            v_old[:] = cur
         a, b, c, vl, vh = _begin_step(
-            k, v, ex, payoff, rhs, dt, theta, lo, di, up, df_r, df_q, shift, scale, is_put,
-            american, v_prev, fitted,
+            k, cur, ex, payoff, rhs, dt, theta, lo, di, up, df_r, df_q, shift, scale, is_put,
+            american, prev, fitted,
         )
+        nv = prev if fitted else cur  # where this step's values go
         if fitted:
             ka, kb = pasting_curvature(lo[k], di[k], up[k], h, is_put)
         j_fixed = 0
@@ -403,15 +405,15 @@ def march_direct_tangents(
                 aw[1] = awc
                 r = rhs[1] - f * r
                 rhs[1] = r * wc
-            v[0] = vl
+            nv[0] = vl
             if fitted:
-                jg, ug, kg = _substitute_fitted(v, rhs, aw, payoff, 1, n - 1, 1, ex, ka, kb, h)
+                jg, ug, kg = _substitute_fitted(nv, rhs, aw, payoff, 1, n - 1, 1, ex, ka, kb, h)
             elif american:
-                _substitute_projected(v, rhs, aw, payoff, 1, n - 1, 1)
+                _substitute_projected(nv, rhs, aw, payoff, 1, n - 1, 1)
             else:
                 for j in range(1, n - 1):
-                    v[j] = rhs[j] - aw[j] * v[j - 1]
-            v[n - 1] = vh
+                    nv[j] = rhs[j] - aw[j] * nv[j - 1]
+            nv[n - 1] = vh
         else:
             rhs[1] -= a * vl
             # eliminate the lower diagonal from the bottom: v_j = (rhs_j - c v_{j+1}) w_j
@@ -448,15 +450,15 @@ def march_direct_tangents(
                 aw[i] = awc
                 r = rhs[i] - f * r
                 rhs[i] = r * wc
-            v[n - 1] = vh
+            nv[n - 1] = vh
             if fitted:
-                jg, ug, kg = _substitute_fitted(v, rhs, aw, payoff, n - 2, 0, -1, ex, ka, kb, h)
+                jg, ug, kg = _substitute_fitted(nv, rhs, aw, payoff, n - 2, 0, -1, ex, ka, kb, h)
             elif american:
-                _substitute_projected(v, rhs, aw, payoff, n - 2, 0, -1)
+                _substitute_projected(nv, rhs, aw, payoff, n - 2, 0, -1)
             else:
                 for j in range(n - 2, 0, -1):
-                    v[j] = rhs[j] - aw[j] * v[j + 1]
-            v[0] = vl
+                    nv[j] = rhs[j] - aw[j] * nv[j + 1]
+            nv[0] = vl
         if n_par:
             # pivots past the fixed point all equal it
             if is_put:
@@ -467,13 +469,19 @@ def march_direct_tangents(
                     w[i] = w[j_fixed - 1]
             for p in range(n_par):
                 _tangent_step(
-                    k, p, tan, trhs, v_old, v, payoff, w, a, c, dt, theta, lo, di, up, dco, dfar,
+                    k, p, tan, trhs, cur if fitted else v_old, nv, payoff, w, a, c, dt, theta, lo, di, up, dco, dfar,
                     is_put, american, t_prev, fitted, jg, ug, kg, h, ex,
                 )
         if american:
-            bnd[k] = locate_boundary(v, payoff, x0, h, is_put) + math.log(shift[k])
+            bnd[k] = locate_boundary(nv, payoff, x0, h, is_put) + math.log(shift[k])
         else:
             bnd[k] = math.nan
+        if fitted:
+            prev = cur
+            cur = nv
+            in_v = not in_v
+    if not in_v:
+        v[:] = cur
 
 
 @njit(cache=True, fastmath={"contract"})
@@ -500,7 +508,9 @@ def _tangent_step(
     if bdf:
         tp = t_prev[p]
         for j in range(1, n - 1):
-            trhs[j] = c1 * t[j] - c2 * tp[j] + ai * (dl * v[j - 1] + dd * v[j] + du * v[j + 1])
+            tj = t[j]
+            trhs[j] = c1 * tj - c2 * tp[j] + ai * (dl * v[j - 1] + dd * v[j] + du * v[j + 1])
+            tp[j] = tj
     else:
         ae = (1.0 - theta[k]) * dt[k]
         el = ae * lo[k]
@@ -512,8 +522,8 @@ def _tangent_step(
                 + ae * (dl * v_old[j - 1] + dd * v_old[j] + du * v_old[j + 1])
                 + ai * (dl * v[j - 1] + dd * v[j] + du * v[j + 1])
             )
-    if fitted:
-        t_prev[p, :] = t
+        if fitted:
+            t_prev[p, :] = t
     # the ghost node's extra terms: right-hand side and the factor on dv_j
     g_add = 0.0
     g_div = 1.0
@@ -627,9 +637,16 @@ def _substitute_fitted(v, rhs, aw, payoff, start, stop, step, ex, ka, kb, h):
     jg = -1
     ug = 0.0
     kg = 0.0
+    # no node with a gap below -bound can be held (beta < 1, kappa below this on the grid)
+    bound = (abs(ka) + abs(kb) * max(ex[start], ex[stop - step])) * h * h
     while j != stop:  # exercise region
         cand = rhs[j] - aw[j] * y
         gap = cand - payoff[j]
+        if gap <= -bound:
+            y = payoff[j]
+            v[j] = y
+            j += step
+            continue
         beta = -aw[j]
         kap = ka + kb * ex[j]
         if j != start and payoff[j - step] > 0.0 and kap > 0.0 and 0.0 < beta < 1.0:
