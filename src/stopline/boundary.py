@@ -52,18 +52,9 @@ def monotone_fit(values: FloatArray, *, decreasing: bool) -> FloatArray:
     ndarray, shape (n,)
         The fit; equal to ``values`` wherever they are already monotone.
     """
-    out = np.array(values, dtype=np.float64, copy=True)
-    ok = np.isfinite(out)
-    y = out[ok]
-    if y.size < 2:
-        return out
-    sign = -1.0 if decreasing else 1.0
-    y = sign * y
-    if np.all(np.diff(y) >= 0.0):
-        return out
-    fit = np.empty_like(y)
-    _kernels.pava_increasing(y, fit)  # pooled stretches get the mean, others stay exact
-    out[ok] = sign * fit
+    src = np.ascontiguousarray(values, dtype=np.float64)
+    out = np.empty_like(src)
+    _kernels.monotone_fit_into(src, bool(decreasing), out)
     return out
 
 

@@ -149,6 +149,8 @@ METHODS: dict[str, type[DirectSweep] | type[ProjectedSOR]] = {
 
 ExerciseMethod = DirectSweep | ProjectedSOR
 
+_DEFAULTS: dict[object, ExerciseMethod] = {name: cls() for name, cls in METHODS.items()}
+
 
 def get_method(method: str | ExerciseMethod) -> ExerciseMethod:
     """Return a solver from its name or pass an instance through.
@@ -160,6 +162,8 @@ def get_method(method: str | ExerciseMethod) -> ExerciseMethod:
     """
     if isinstance(method, (DirectSweep, ProjectedSOR)):
         return method
+    if isinstance(method, str) and method in _DEFAULTS:  # one shared (frozen) instance
+        return _DEFAULTS[method]
     if isinstance(method, str) and method.strip().lower() in METHODS:
         return METHODS[method.strip().lower()]()
     raise InputError("method", method, f"must be one of {', '.join(METHODS)}")

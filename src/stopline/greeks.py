@@ -64,7 +64,7 @@ __all__ = [
 ]
 
 #: Nodes in the read-off stencil (a quintic).
-STENCIL = 6
+STENCIL = _kernels.STENCIL
 #: Relative volatility bump for vega: ``dv = VOL_BUMP * vol``. The truncation error of the
 #: central difference, ``dv^2 / 6 * d3V/dvol3``, stays below 1.5e-4 of vega over typical
 #: contracts; a smaller bump divides the grid's non-smooth dependence on the inputs (nodes
@@ -147,40 +147,18 @@ def read_at_spot(
         Escrowed dividends: the nodes are ``(spot - PV(D)) / K`` and ``pv = PV(D) / K``, so the
         exercise value at ``x`` is that of the spot ``K (e^x + pv)``; ``x_boundary`` is then
         given in the same frame as the nodes.
+
+    Notes
+    -----
+    The rule is compiled (:func:`stopline._kernels.read_off`) and shared with the one-call
+    price of a Richardson pair.
     """
-    n = values.shape[0]
-    p = min(STENCIL, n)
-    j = int(math.floor((x_spot - x_min) / h))
-    j0 = min(max(j - p // 2 + 1, 0), n - p)
-    if american:
-        # a put's payoff is positive at the low end
-        put_side = bool(is_put) if is_put is not None else payoff[0] > 0.0
-        e = math.exp(x_spot) + pv
-        intrinsic = max(1.0 - e, 0.0) if put_side else max(e - 1.0, 0.0)
-        if not math.isnan(x_boundary):
-            inside = x_spot <= x_boundary if put_side else x_spot >= x_boundary
-        else:
-            inside = all(values[i] <= payoff[i] and payoff[i] > 0 for i in range(j0, j0 + p))
-        if inside and intrinsic > 0.0:
-            return GridReadout(strike * intrinsic, -1.0 if put_side else 1.0, 0.0, True)
-        held = (values > payoff) | (payoff <= 0.0)
-        if not held.any():
-            pass  # every node exercised: the stencil stays around the spot
-        elif put_side:
-            first = int(np.argmax(held))  # first held node from the low end
-            if first + p <= n:
-                j0 = max(j0, first)
-        else:
-            last = n - 1 - int(np.argmax(held[::-1]))  # last held node from the high end
-            if last - p + 1 >= 0:
-                j0 = min(j0, last - p + 1)
-    w = fd_weights((x_spot - x_min) / h - j0, np.arange(p, dtype=np.float64), 2)
-    seg = values[j0 : j0 + p]
-    v = float(w[0] @ seg)
-    vx = float(w[1] @ seg) / h
-    vxx = float(w[2] @ seg) / (h * h)
-    e = math.exp(x_spot)
-    return GridReadout(strike * v, vx / e, (vxx - vx) / (strike * e * e), False)
+    put_side = bool(is_put) if is_put is not None else bool(payoff[0] > 0.0)
+    return GridReadout(*_kernels.read_off(
+        np.ascontiguousarray(values, dtype=np.float64),
+        np.ascontiguousarray(payoff, dtype=np.float64), float(x_min), float(h), float(x_spot), float(strike), bool(american),
+        float(x_boundary), put_side, float(pv),
+    ))
 
 
 def european_vega_rho(

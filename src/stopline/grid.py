@@ -23,6 +23,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from . import _kernels
 from ._types import FloatArray
 
 __all__ = [
@@ -31,6 +32,7 @@ __all__ = [
     "SegmentedTimeGrid",
     "build_space_grid",
     "build_time_grid",
+    "unit_time_grid",
     "build_segmented_time_grid",
     "split_levels",
 ]
@@ -156,25 +158,15 @@ def build_space_grid(
     frame : {"x", "y"}
         Coordinate of the nodes.
     """
-    anchors = (x_spot + drift,) if frame == "y" else (x_spot, x_spot + drift)
-    lo = min(anchors) - width_sd * sd
-    hi = max(anchors) + width_sd * sd
-    # the strike is left out only when it lies two standard deviations beyond the domain
-    # itself: what the option is worth there is then below ~phi(width_sd + 2) of the strike
-    reach = lo - 2.0 * sd <= 0.0 <= hi + 2.0 * sd
-    if reach:
-        lo, hi = min(lo, -width_sd * sd), max(hi, width_sd * sd)
     if (points_per_sd is None) == (n_points is None):
         raise ValueError("give exactly one of points_per_sd and n_points")
-    h = (hi - lo) / (n_points - 2) if n_points is not None else min(sd / points_per_sd, h_max)
-    if n_max is not None and (hi - lo) / h + 2 > n_max:
-        h = (hi - lo) / (n_max - 2)
-    if not reach:
-        n = n_points if n_points is not None else math.ceil((hi - lo) / h) + 1
-        return SpaceGrid(lo, h, n, -1, frame)
-    j_lo = math.ceil(-lo / h)
-    n = n_points if n_points is not None else j_lo + math.ceil(hi / h) + 1
-    return SpaceGrid(-j_lo * h, h, n, j_lo, frame)
+    x_min, h, n, k = _kernels.space_layout(
+        float(x_spot), float(sd), float(drift), float(width_sd),
+        math.nan if points_per_sd is None else float(points_per_sd),
+        -1 if n_points is None else int(n_points), float(h_max),
+        -1 if n_max is None else int(n_max), frame == "y",
+    )
+    return SpaceGrid(x_min, h, int(n), int(k), frame)
 
 
 def build_time_grid(
@@ -201,10 +193,18 @@ def build_time_grid(
     Rannacher, R. (1984), Finite element solution of diffusion problems with irregular data,
     Numerische Mathematik 43.
     """
+    unit_tau, unit_dt, theta = unit_time_grid(levels, rannacher=rannacher, grading=grading)
+    return TimeGrid(levels, expiry * unit_tau, expiry * unit_dt, theta.copy())
+
+
+def unit_time_grid(
+    levels: int, *, rannacher: int | None = None, grading: float = 2.0
+) -> tuple[FloatArray, FloatArray, FloatArray]:
+    """Time to expiry, step lengths and implicitness of :func:`build_time_grid` for ``T = 1``
+    (read-only arrays shared by every caller; multiply the first two by the expiry)."""
     if rannacher is None:
         rannacher = min(4, max(1, levels // 8))
-    unit_tau, unit_dt, theta = _unit_time_grid(levels, min(rannacher, levels), float(grading))
-    return TimeGrid(levels, expiry * unit_tau, expiry * unit_dt, theta.copy())
+    return _unit_time_grid(levels, min(rannacher, levels), float(grading))
 
 
 @functools.lru_cache(maxsize=256)

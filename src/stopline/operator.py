@@ -32,6 +32,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from . import _kernels
 from ._types import FloatArray
 from .grid import TimeGrid
 from .termstructure import Curve, PiecewiseConstant, curve_values
@@ -99,7 +100,7 @@ def coefficients(
 def choose_frame(sd: float, drift: float, h: float, vol: float, mu: float) -> str:
     """Frame "y" where frame "x" would be non-monotone (``|mu| h > vol^2``) on spacing ``h``
     or would spend most of its nodes on the forward's path (``|drift| > 4 sd``); else "x"."""
-    return "y" if abs(mu) * h > vol * vol or abs(drift) > 4.0 * sd else "x"
+    return "y" if _kernels.frame_y_needed(sd, drift, h, vol, mu) else "x"
 
 
 def plan_steps(
@@ -157,18 +158,13 @@ def _plan_flat(
     time: TimeGrid, h: float, rate: float, div_yield: float, vol: float, frame: str
 ) -> StepPlan:
     """:func:`plan_steps` for flat data: the same numbers, without per-step curve look-ups."""
-    m = time.dt.shape[0]
-    lo, di, up = coefficients(h, rate, div_yield, vol, frame)
-    int_r = rate * time.tau
-    int_q = div_yield * time.tau
-    if frame == "y":
-        shift = np.exp(-(int_r - int_q - 0.5 * (vol**2 * time.tau)))
-        scale = np.exp(int_r)
-    else:
-        shift = scale = np.ones(m)
+    plan = np.empty((7, time.dt.shape[0]))
+    coef = coefficients(h, rate, div_yield, vol, frame)
+    _kernels.flat_plan(time.tau, coef, rate, div_yield, vol, frame == "y", plan)
+    lo, di, up, df_r, df_q, shift, scale = plan
     return StepPlan(
-        tau=time.tau, dt=time.dt, theta=time.theta, lo=np.full(m, lo), di=np.full(m, di),
-        up=np.full(m, up), df_r=np.exp(-int_r), df_q=np.exp(-int_q), shift=shift, scale=scale,
+        tau=time.tau, dt=time.dt, theta=time.theta, lo=lo, di=di, up=up, df_r=df_r, df_q=df_q,
+        shift=shift, scale=scale,
     )
 
 

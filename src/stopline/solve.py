@@ -34,6 +34,7 @@ __all__ = [
     "PDEProblem",
     "GridSolution",
     "payoff_on",
+    "node_exp",
     "solve",
     "problem_from_market",
     "time_grid_for",
@@ -158,10 +159,15 @@ def payoff_on(
     """Exercise value / strike on the nodes at a level where ``S / K = e^y shift``
     (``ex``: ``e^y`` on the nodes, if already at hand)."""
     out = np.empty(space.n)
-    _kernels.obstacle(np.exp(space.x) if ex is None else ex, shift, is_put, out)
-    if shift == 1.0 and space.has_strike:
-        out[space.strike_index] = 0.0
+    _kernels.payoff_nodes(
+        node_exp(space) if ex is None else ex, is_put, float(shift), space.strike_index, out
+    )
     return out
+
+
+def node_exp(space: SpaceGrid) -> FloatArray:
+    """``e^x`` on the nodes of ``space``: the spot / strike each stands for in frame "x"."""
+    return _kernels.node_exp(space.x_min, space.h, space.n)
 
 
 def solve(
@@ -182,7 +188,7 @@ def solve(
         plain linear solve).
     """
     plan = plan_steps(time, space.h, *problem.coefficients, space.frame)
-    ex = np.exp(space.x)
+    ex = node_exp(space)
     v = payoff_on(space, problem.is_put, ex=ex)
     if not problem.has_events:
         fitted = fitted_boundary(problem, space, time)
@@ -246,27 +252,15 @@ def solve_with_tangents(
         d(value / strike)/d vol and d(value / strike)/d rate on every node at valuation.
     """
     plan = plan_steps(time, space.h, *problem.coefficients, space.frame)
-    ex = np.exp(space.x)
+    ex = node_exp(space)
     v = payoff_on(space, problem.is_put, ex=ex)
     n_steps = plan.dt.shape[0]
-    h, sig = space.h, problem.vol
     dco = np.empty((2, 3, n_steps))
-    # d/d vol of lo = s^2/(2h^2) - mu/(2h), di = -s^2/h^2 - r, up = s^2/(2h^2) + mu/(2h),
-    # with mu = r - q - s^2/2; and d/d rate
-    dco[0, 0, :] = sig / (h * h) + 0.5 * sig / h
-    dco[0, 1, :] = -2.0 * sig / (h * h)
-    dco[0, 2, :] = sig / (h * h) - 0.5 * sig / h
-    dco[1, 0, :] = -0.5 / h
-    dco[1, 1, :] = -1.0
-    dco[1, 2, :] = 0.5 / h
-    # far-field values: the discounted forward payoff depends on the rate through df_r
-    dfar = np.zeros((2, 2, n_steps))
-    for end, s_end in ((0, ex[0]), (1, ex[-1])):
-        fwd = (plan.df_r - s_end * plan.df_q) if problem.is_put else (s_end * plan.df_q - plan.df_r)
-        intrinsic = max(1.0 - s_end, 0.0) if problem.is_put else max(s_end - 1.0, 0.0)
-        active = (fwd > 0.0) & ~(problem.american & (intrinsic > fwd))
-        sign = -1.0 if problem.is_put else 1.0
-        dfar[1, end, :] = np.where(active, sign * plan.tau * plan.df_r, 0.0)
+    dfar = np.empty((2, 2, n_steps))
+    _kernels.tangent_coefficients(
+        space.h, problem.vol, problem.is_put, problem.american, ex[0], ex[-1], plan.tau,
+        plan.df_r, plan.df_q, dco, dfar,
+    )
     tan = np.zeros((2, space.n))
     bnd = np.empty(n_steps)
     _kernels.march_direct_tangents(
@@ -284,7 +278,7 @@ def _solve_with_dividends(
 ) -> GridSolution:
     """March segment by segment, applying each dividend at its ex-date level."""
     tau = time.tau
-    ex_nodes = np.exp(space.x)
+    ex_nodes = node_exp(space)
     events: dict[int, float] = {}
     at_expiry = 0.0
     for t_d, d in zip(problem.dividend_tau, problem.dividend_amount, strict=True):
