@@ -385,6 +385,7 @@ def march_direct_tangents(
     t_prev = np.empty((n_par if fitted else 0, n))
     trhs = np.empty(n if n_par else 0)
     jg, ug, kg = -1, 0.0, 0.0
+    ka = kb = 0.0
     # the substitution's range, as plain integers (literal arguments would compile a second
     # copy of it)
     s_first = 1 if is_put else n - 2
@@ -399,8 +400,8 @@ def march_direct_tangents(
             american, prev, fitted,
         )
         nv = prev if fitted else cur  # where this step's values go
-        if fitted:
-            ka, kb = pasting_curvature(lo[k], di[k], up[k], h, is_put)
+        if fitted and (k == 0 or lo[k] != lo[k - 1] or di[k] != di[k - 1] or up[k] != up[k - 1]):
+            ka, kb = pasting_curvature(lo[k], di[k], up[k], h, is_put)  # per coefficient change
         j_fixed = 0
         if is_put:
             rhs[n - 2] -= c * vh
@@ -650,6 +651,20 @@ def _substitute_projected(v, rhs, aw, payoff, start, stop, step):
         j += step
 
 @njit(cache=True, fastmath={"contract"})
+def _exercised_run(v, rhs, aw, payoff, j, stop, step, y, bound):
+    """The run of nodes that are surely exercised (gap at most ``-bound``), from ``j``:
+    their values are the payoff. Returns the first node that may be held (or ``stop``) and
+    the value before it."""
+    while j != stop:
+        if rhs[j] - aw[j] * y > payoff[j] - bound:
+            return j, y
+        y = payoff[j]
+        v[j] = y
+        j += step
+    return j, y
+
+
+@njit(cache=True, fastmath={"contract"})
 def _substitute_fitted(v, rhs, aw, payoff, start, stop, step, ex, ka, kb, h):
     """:func:`_substitute_projected` with the exercise boundary fitted inside its cell.
 
@@ -682,13 +697,11 @@ def _substitute_fitted(v, rhs, aw, payoff, start, stop, step, ex, ka, kb, h):
     # no node with a gap below -bound can be held (beta < 1, kappa below this on the grid)
     bound = (abs(ka) + abs(kb) * max(ex[start], ex[stop - step])) * h * h
     while j != stop:  # exercise region
+        j, y = _exercised_run(v, rhs, aw, payoff, j, stop, step, y, bound)
+        if j == stop:
+            break
         cand = rhs[j] - aw[j] * y
         gap = cand - payoff[j]
-        if gap <= -bound:
-            y = payoff[j]
-            v[j] = y
-            j += step
-            continue
         beta = -aw[j]
         kap = ka + kb * ex[j]
         if j != start and payoff[j - step] > 0.0 and kap > 0.0 and 0.0 < beta < 1.0:

@@ -82,7 +82,7 @@ class AccuracyPreset:
 #: Accuracy presets. Each solves on a grid and on the grid with half the resolution in space
 #: and time, and extrapolates (Richardson); see ``validation/`` for the measured errors.
 PRESETS: dict[str, AccuracyPreset] = {
-    "fast": AccuracyPreset("fast", 1e-4, 16.0, 4.0, 32, 0.04),
+    "fast": AccuracyPreset("fast", 1e-4, 12.0, 4.0, 24, 0.05),
     "standard": AccuracyPreset("standard", 1e-6, 32.0, 5.5, 100, 0.02),
     "fine": AccuracyPreset("fine", 1e-8, 120.0, 7.0, 600, 0.0015),
 }
