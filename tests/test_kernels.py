@@ -20,9 +20,17 @@ def _twin_far(s, df_r, df_q, is_put, american):
     return max(fwd, 0.0, intrinsic if american else 0.0)
 
 
-def _twin_march(v, x0, h, plan, is_put, american):
-    """Theta steps solved with scipy's banded solver; American by projected iteration."""
+def _twin_march(v, x0, h, plan, is_put, american, fitted=False, coef=None):
+    """Theta steps solved with scipy's banded solver; American by projected iteration.
+
+    ``fitted`` (American): BDF2 after the implicit start and, in the projected iteration, a
+    held node next to an exercised one sees it through the ghost value ``payoff + (s - u)^2``
+    (``s = sqrt(kappa) h``, ``u^2`` the node's own premium, ``kappa`` from ``coef = (r, q,
+    vol)`` at the cell's middle), written from the docstrings of ``bdf2_step`` and
+    ``_substitute_fitted``.
+    """
     v = v.copy()
+    v_prev = v.copy()
     n = v.size
     for k in range(plan.dt.size):
         s_nodes = np.exp(x0 + h * np.arange(n)) * plan.shift[k]
@@ -31,7 +39,14 @@ def _twin_march(v, x0, h, plan, is_put, american):
         ae, ai = (1 - plan.theta[k]) * plan.dt[k], plan.theta[k] * plan.dt[k]
         lo, di, up = plan.lo[k], plan.di[k], plan.up[k]
         vl, vh = (_twin_far(s, plan.df_r[k], plan.df_q[k], is_put, american) for s in (s_lo, s_hi))
-        rhs = v[1:-1] + ae * (lo * v[:-2] + di * v[1:-1] + up * v[2:])
+        if fitted and k > 0 and plan.theta[k] < 1.0:
+            w = plan.dt[k] / plan.dt[k - 1]
+            a0 = (1 + 2 * w) / (1 + w)
+            ai = plan.dt[k] / a0
+            rhs = (1 + w) / a0 * v[1:-1] - w * w / ((1 + w) * a0) * v_prev[1:-1]
+        else:
+            rhs = v[1:-1] + ae * (lo * v[:-2] + di * v[1:-1] + up * v[2:])
+        v_prev = v.copy()
         rhs[0] += ai * lo * vl
         rhs[-1] += ai * up * vh
         m = n - 2
@@ -47,10 +62,26 @@ def _twin_march(v, x0, h, plan, is_put, american):
             rhs[-1] -= ai * up * vh
             full = np.concatenate(([vl], np.maximum(new, payoff[1:-1]), [vh]))
             a, b, c = -ai * lo, 1 - ai * di, -ai * up
+            if fitted:
+                r, q, vol = coef
+                x_mid = x0 + h * np.arange(n) + (-0.5 * h if is_put else 0.5 * h)
+                kappa = (r - q * np.exp(x_mid)) / vol**2 * (1.0 if is_put else -1.0)
+                beta = -(a if is_put else c) / b
             for _ in range(100000):
                 old = full.copy()
                 for j in range(1, n - 1):
                     gs = (rhs[j - 1] - a * full[j - 1] - c * full[j + 1]) / b
+                    i = j - 1 if is_put else j + 1
+                    if fitted and 1 <= i <= n - 2 and payoff[i] > 0 and full[i] <= payoff[i] \
+                            and kappa[j] > 0:
+                        s2 = kappa[j] * h * h
+                        gap = gs - payoff[j]
+                        if gap + beta * s2 <= 0:
+                            gs = payoff[j]
+                        elif gap < s2:
+                            # u^2 = gap + beta (s - u)^2, the positive root
+                            u = max(np.roots([1 - beta, 2 * beta * np.sqrt(s2), -(gap + beta * s2)]).real)
+                            gs = payoff[j] + u * u
                     full[j] = max(gs, payoff[j])
                 if np.max(np.abs(full - old)) < 1e-15:
                     break
@@ -66,28 +97,29 @@ def small_case():
     sd = vol * math.sqrt(t)
     space = build_space_grid(xs, sd, (r - q - vol * vol / 2) * t, width_sd=4.0, points_per_sd=6)
     time = build_time_grid(t, 8)
-    return space, time, plan_steps(time, space.h, r, q, vol)
+    return space, time, plan_steps(time, space.h, r, q, vol), (r, q, vol)
 
 
 @pytest.mark.parametrize("is_put", [True, False])
-@pytest.mark.parametrize("american", [False, True])
-def test_march_direct_matches_numpy_twin(small_case, is_put: bool, american: bool) -> None:
+@pytest.mark.parametrize("american,fitted", [(False, False), (True, False), (True, True)])
+def test_march_direct_matches_numpy_twin(small_case, is_put: bool, american: bool, fitted: bool) -> None:
     # common practice: the Brennan-Schwartz sweep and a projected Gauss-Seidel iteration solve
     # the same discrete complementarity problem; the European case is a banded linear solve.
-    space, time, plan = small_case
+    space, time, plan, coef = small_case
     payoff = payoff_on(space, is_put)
     v = payoff.copy()
     bnd = np.empty(plan.dt.size)
     _kernels.march_direct(v, np.exp(space.x), space.x_min, space.h, plan.dt, plan.theta, plan.lo,
-                          plan.di, plan.up, plan.df_r, plan.df_q, plan.shift, plan.scale, is_put, american, bnd)
-    twin = _twin_march(payoff, space.x_min, space.h, plan, is_put, american)
+                          plan.di, plan.up, plan.df_r, plan.df_q, plan.shift, plan.scale, is_put,
+                          american, bnd, fitted)
+    twin = _twin_march(payoff, space.x_min, space.h, plan, is_put, american, fitted, coef)
     np.testing.assert_allclose(v, twin, rtol=0, atol=1e-12)
 
 
 @pytest.mark.parametrize("is_put", [True, False])
 def test_march_psor_matches_direct_kernel_and_twin(small_case, is_put: bool) -> None:
     # common practice: PSOR converges to the unique solution of the same problem.
-    space, time, plan = small_case
+    space, time, plan, coef = small_case
     payoff = payoff_on(space, is_put)
     v = payoff.copy()
     bnd = np.empty(plan.dt.size)

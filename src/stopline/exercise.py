@@ -51,23 +51,39 @@ class MarchReport:
 class DirectSweep:
     """Brennan-Schwartz direct sweep.
 
+    Parameters
+    ----------
+    fitted : bool
+        Where it applies (see :func:`stopline.solve.fitted_boundary`), fit the exercise
+        boundary inside its cell (ghost value at the first held node from smooth pasting)
+        and take BDF2 steps after the implicit start, so that the error is a smooth function
+        of the grid and the Richardson pair removes it (default). ``False`` solves the plain
+        Crank-Nicolson complementarity problem, the one :class:`ProjectedSOR` solves.
+
     References
     ----------
     Brennan, M. J. and Schwartz, E. S. (1977), The valuation of American put options,
     Journal of Finance 32(2).
     """
 
+    fitted: bool = True
     name: str = "direct"
 
     def march(
         self, v: FloatArray, ex: FloatArray, space: SpaceGrid, plan: StepPlan,
-        is_put: bool, american: bool,
+        is_put: bool, american: bool, fitted: bool = False,
     ) -> MarchReport:
-        """Advance ``v`` (in place) through every step of ``plan``; ``ex = exp(space.x)``."""
+        """Advance ``v`` (in place) through every step of ``plan``; ``ex = exp(space.x)``.
+
+        ``fitted``: whether the problem allows fitting the exercise boundary (see
+        :func:`stopline.solve.fitted_boundary`); it is done when this solver's ``fitted``
+        is also set.
+        """
         bnd = np.empty(plan.dt.shape[0])
         _kernels.march_direct(
             v, ex, space.x_min, space.h, plan.dt, plan.theta, plan.lo, plan.di, plan.up,
             plan.df_r, plan.df_q, plan.shift, plan.scale, is_put, american, bnd,
+            fitted and self.fitted,
         )
         return MarchReport(bnd)
 
@@ -102,9 +118,11 @@ class ProjectedSOR:
 
     def march(
         self, v: FloatArray, ex: FloatArray, space: SpaceGrid, plan: StepPlan,
-        is_put: bool, american: bool,
+        is_put: bool, american: bool, fitted: bool = False,
     ) -> MarchReport:
-        """Advance ``v`` (in place) through every step of ``plan``; ``ex = exp(space.x)``."""
+        """Advance ``v`` (in place) through every step of ``plan``; ``ex = exp(space.x)``;
+        ``fitted`` is ignored: projected SOR solves the plain Crank-Nicolson problem (a
+        nonlinear ghost value makes its sweeps cycle between holding and exercising a node)."""
         n_steps = plan.dt.shape[0]
         bnd = np.empty(n_steps)
         iters = np.zeros(n_steps, dtype=np.int64)

@@ -93,8 +93,8 @@ class AccuracyPreset:
 #: Accuracy presets. Each solves on a grid and on the grid with half the resolution in space
 #: and time, and extrapolates (Richardson); see ``validation/`` for the measured errors.
 PRESETS: dict[str, AccuracyPreset] = {
-    "fast": AccuracyPreset("fast", 1e-4, 16.0, 4.0, 32, 0.04),
-    "standard": AccuracyPreset("standard", 1e-6, 20.0, 5.5, 100, 0.008),
+    "fast": AccuracyPreset("fast", 1e-4, 12.0, 4.0, 24, 0.05),
+    "standard": AccuracyPreset("standard", 1e-6, 32.0, 5.5, 100, 0.02),
     "fine": AccuracyPreset("fine", 1e-8, 120.0, 7.0, 600, 0.0015),
 }
 
@@ -676,7 +676,8 @@ def price(
     t = option.time_to_expiry(market.valuation_date)
     if t == 0.0:
         return _expired(option, market, solver, t)
-    if grid is None and solver.name == "direct" and _ONE_CALL and not _extreme(option, market, t):
+    if (grid is None and solver.name == "direct" and getattr(solver, "fitted", True) and _ONE_CALL
+            and not _extreme(option, market, t)):
         # the common case in one kernel call; None where it does not apply
         result = _price_pair(option, market, t, accuracy, greeks)
         if result is not None:
