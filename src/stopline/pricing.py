@@ -311,8 +311,10 @@ def _resolve_grid(
         # frame "x" also needs the drift not to sweep the solution towards the exercise
         # region across many nodes per step (domain study: a call at vol 2.4 % drifting 17 % a
         # year towards exercise for 21 years was 5e-6 of the strike off there, 1e-11 in "y")
+        # (at vol sqrt(T) > LONG_SD frame "y" is the worse: vol 500 %, T 50 lost 1e-4 there)
         towards = mu < 0.0 if problem.is_put else mu > 0.0
-        if abs(mu) * space.h <= problem.vol**2 and not (towards and abs(drift) > 4.0 * sd):
+        sweeps = towards and abs(drift) > 4.0 * sd and sd <= LONG_SD
+        if abs(mu) * space.h <= problem.vol**2 and not sweeps:
             return space, time_grid_for(problem, long_levels), name
     if grid is not None:
         space = build_space_grid(problem.x_spot, sd, drift, width_sd=width, n_points=n_points)
@@ -331,6 +333,10 @@ def _resolve_grid(
         if problem.american:
             # steps short enough that the exercise value's kink moves about a node per step
             levels = max(levels, min(math.ceil(abs(drift) / space.h), 20 * levels))
+    if grid is None and not problem.american and sd > LONG_SD and problem.curves is None:
+        # a European over a long, very volatile life: more levels likewise (domain study:
+        # "fast" 3.3e-4 of the strike off at vol sqrt(T) = 7.8 with 27 steps)
+        levels = max(levels, min(math.ceil(levels * (sd / LONG_SD) ** 1.5), MAX_LONG_LEVELS))
     return space, time_grid_for(problem, levels), name
 
 
@@ -480,7 +486,7 @@ def _extreme_regime(
             not american and x_spot >= math.log(PARITY_MIN_MONEYNESS))):
         return True
     if not american:
-        return False
+        return sd > LONG_SD
     mu = r - q - 0.5 * vol * vol
     if sd > LONG_SD or abs(mu * t) > 4.0 * sd:
         return True
