@@ -4,6 +4,7 @@ Run from the repository root::
 
     python benchmarks/accuracy_study.py              # 1000 typical + 100 short + 100 near-the-money
     python benchmarks/accuracy_study.py --n 300      # a smaller typical set
+    python benchmarks/accuracy_study.py --method fitted   # one solver only (default: both)
 
 The contracts are drawn with a seed of their own (not the one of ``benchmarks/run.py``), from
 the ranges the presets promise: K = 100, S ~ U[70, 130], vol ~ U[0.1, 0.6],
@@ -108,14 +109,15 @@ def references(cases: list[dict], workers: int) -> list[dict]:
     return rows
 
 
-def study(cases: list[dict], refs: list[dict], presets: tuple[str, ...]) -> dict:
+def study(cases: list[dict], refs: list[dict], presets: tuple[str, ...],
+          method: str = "direct") -> dict:
     """Errors / strike and error estimates / strike per preset, shape (n_cases,) each."""
     out = {}
     for name in presets:
         err, est = [], []
         for case, ref in zip(cases, refs, strict=True):
             opt, mkt = objects(case)
-            r = price(opt, mkt, accuracy=name, greeks="grid")
+            r = price(opt, mkt, accuracy=name, method=method, greeks="grid")
             err.append(abs(r.price - ref["ref"]) / STRIKE)
             est.append(r.error_estimate / STRIKE)
         out[name] = (np.array(err), np.array(est))
@@ -129,33 +131,36 @@ def main(argv: list[str] | None = None) -> None:
     ap.add_argument("--atm", type=int, default=100, help="near-the-money contracts")
     ap.add_argument("--workers", type=int, default=os.cpu_count() or 1)
     ap.add_argument("--presets", default=",".join(PRESETS))
+    ap.add_argument("--method", default="direct,fitted",
+                    help="solvers to study, comma separated (default: direct,fitted)")
     ap.add_argument("--worst", type=int, default=0, help="list the worst contracts per preset")
     args = ap.parse_args(argv)
     cases = make_cases(args.n, args.short, args.atm)
     refs = references(cases, args.workers)
     checks = [abs(r["ref"] - r["check"]) / STRIKE for r in refs if "check" in r]
     presets = tuple(args.presets.split(","))
-    res = study(cases, refs, presets)
+    methods = tuple(args.method.split(","))
+    res = {(m, p): v for m in methods for p, v in study(cases, refs, presets, m).items()}
     groups = np.array([c["group"] for c in cases])
     kinds = np.array([c["kind"] for c in cases])
     print(f"\naccuracy study: {len(cases)} American contracts (seed {SEED}); "
           f"reference price(grid=GridSpec{REF_GRID}), within {max(checks):.1e} x K of "
           f"GridSpec{CHECK_GRID} on the first {len(checks)}")
-    head = (f"| {'preset':8} | {'subset':12} | {'n':>5} | {'max err/K':>9} | {'p99':>8} | "
+    head = (f"| {'method':6} | {'preset':8} | {'subset':12} | {'n':>5} | {'max err/K':>9} | {'p99':>8} | "
             f"{'median':>8} | {'> target':>8} | {'err > est':>9} | {'miss/target':>11} |")
     print(head)
     print("|" + "|".join("-" * (len(c)) for c in head.split("|")[1:-1]) + "|")
     subsets = [("all", np.ones(len(cases), bool))]
     subsets += [(g, groups == g) for g in ("typical", "short", "atm") if (groups == g).any()]
     subsets += [(k + "s", kinds == k) for k in ("put", "call")]
-    for name in presets:
-        err, est = res[name]
+    for method, name in res:
+        err, est = res[(method, name)]
         for label, mask in subsets:
             e, s = err[mask], est[mask]
             miss = int((e > TARGETS[name]).sum())
             under = int((e > s).sum())
             ratio = float(np.max(np.maximum(e - s, 0.0))) / TARGETS[name]
-            print(f"| {name:8} | {label:12} | {mask.sum():5d} | {e.max():9.1e} | "
+            print(f"| {method:6} | {name:8} | {label:12} | {mask.sum():5d} | {e.max():9.1e} | "
                   f"{np.percentile(e, 99):8.1e} | {np.median(e):8.1e} | {miss:8d} | "
                   f"{under:9d} | {ratio:11.2f} |")
         if args.worst:

@@ -9,6 +9,7 @@ import numpy as np
 import pytest
 
 from stopline import Market, Option, PiecewiseConstant, _kernels, pricing
+from stopline.exercise import DirectSweep, FittedSweep, get_method
 from stopline.pricing import MAX_COARSE_NODES, price
 
 
@@ -47,6 +48,10 @@ EDGES = [
 ]
 
 
+#: the solvers the one-call pair serves: plain Crank-Nicolson and the fitted boundary
+METHODS_PAIRED = ("direct", "fitted")
+
+
 def _general(monkeypatch: pytest.MonkeyPatch, opt: Option, mkt: Market, **kw) -> pricing.Result:
     with monkeypatch.context() as m:
         m.setattr(pricing, "_ONE_CALL", False)
@@ -69,38 +74,44 @@ def _assert_same(a: pricing.Result, b: pricing.Result) -> None:
     assert a.boundary.spot.shape == b.boundary.spot.shape
 
 
+@pytest.mark.parametrize("method", METHODS_PAIRED)
 @pytest.mark.parametrize(
     ("accuracy", "n", "seed"), [("fast", 100, 11), ("standard", 24, 12), ("fine", 4, 13)]
 )
 def test_one_call_pair_equals_general_path_on_typical_contracts(
-    monkeypatch: pytest.MonkeyPatch, accuracy: str, n: int, seed: int
+    monkeypatch: pytest.MonkeyPatch, accuracy: str, n: int, seed: int, method: str
 ) -> None:
     for i, (opt, mkt) in enumerate(_typical(n, seed)):
         greeks = "full" if i % 3 == 0 else "grid"
         t = opt.time_to_expiry(None)
-        one = pricing._price_pair(opt, mkt, t, accuracy, greeks)
+        one = pricing._price_pair(opt, mkt, t, accuracy, greeks, get_method(method))
         assert one is not None  # the one-call path applies to every typical contract
-        _assert_same(one, _general(monkeypatch, opt, mkt, accuracy=accuracy, greeks=greeks))
+        assert one.stats.method == method
+        _assert_same(one, _general(monkeypatch, opt, mkt, accuracy=accuracy, greeks=greeks,
+                                   method=method))
         if greeks == "full":
             assert math.isfinite(one.vega) and math.isfinite(one.rho)
 
 
+@pytest.mark.parametrize("method", METHODS_PAIRED)
 @pytest.mark.parametrize("case", EDGES, ids=range(len(EDGES)))
 @pytest.mark.parametrize("greeks", ["grid", "full"])
 def test_one_call_pair_equals_general_path_on_edge_cases(
-    monkeypatch: pytest.MonkeyPatch, case: tuple[Option, Market], greeks: str
+    monkeypatch: pytest.MonkeyPatch, case: tuple[Option, Market], greeks: str, method: str
 ) -> None:
     opt, mkt = case
     for accuracy in ("fast", "standard"):
-        one = pricing._price_pair(opt, mkt, opt.time_to_expiry(None), accuracy, greeks)
+        one = pricing._price_pair(opt, mkt, opt.time_to_expiry(None), accuracy, greeks,
+                                  get_method(method))
         assert one is not None
-        _assert_same(one, _general(monkeypatch, opt, mkt, accuracy=accuracy, greeks=greeks))
-        _assert_same(price(opt, mkt, accuracy=accuracy, greeks=greeks), one)
+        _assert_same(one, _general(monkeypatch, opt, mkt, accuracy=accuracy, greeks=greeks,
+                                   method=method))
+        _assert_same(price(opt, mkt, accuracy=accuracy, greeks=greeks, method=method), one)
 
 
 def test_edge_cases_reach_what_they_name() -> None:
     # the edge cases exercise the branches they are meant to
-    assert pricing._price_pair(*EDGES[0], 0.5, "fast", "grid").delta == -1.0  # exercised
+    assert pricing._price_pair(*EDGES[0], 0.5, "fast", "grid", DirectSweep()).delta == -1.0
     far = pricing._preset_layout(math.log(100 / 300), 0.05, 0.05, 0.0, 0.1, True,
                                  pricing.PRESETS["fast"])
     assert far[3] == -1  # the strike is not a node
@@ -110,12 +121,13 @@ def test_one_call_pair_equals_general_path_fine_and_at_the_node_cap(
     monkeypatch: pytest.MonkeyPatch,
 ) -> None:
     opt, mkt = Option("put", 100.0, 0.4), Market(92.0, 0.06, 0.35, div_yield=0.01)
-    one = pricing._price_pair(opt, mkt, 0.4, "fine", "full")
-    _assert_same(one, _general(monkeypatch, opt, mkt, accuracy="fine"))
+    for method in METHODS_PAIRED:
+        one = pricing._price_pair(opt, mkt, 0.4, "fine", "full", get_method(method))
+        _assert_same(one, _general(monkeypatch, opt, mkt, accuracy="fine", method=method))
     # a long, very volatile life: the fine preset reaches the coarse node cap (vol sqrt(T) = 2:
     # above that, and for calls at 3, the general path's extreme regimes take over)
     opt, mkt = Option("put", 100.0, 4.0, style="european"), Market(100.0, -0.05, 1.0)
-    one = pricing._price_pair(opt, mkt, 4.0, "fine", "grid")
+    one = pricing._price_pair(opt, mkt, 4.0, "fine", "grid", DirectSweep())
     assert one.stats.coarse_space_points == MAX_COARSE_NODES and one.stats.warnings
     _assert_same(one, _general(monkeypatch, opt, mkt, accuracy="fine", greeks="grid"))
 
@@ -130,7 +142,7 @@ def test_one_call_pair_declines_what_it_does_not_solve() -> None:
         Market(100.0, 0.05, 1e-7),  # below the grid's floor: zero-vol limit
     ]
     for mkt in declined:
-        assert pricing._price_pair(opt, mkt, 1.0, "standard", "grid") is None
+        assert pricing._price_pair(opt, mkt, 1.0, "standard", "grid", FittedSweep()) is None
         assert math.isfinite(price(opt, mkt, accuracy="fast", greeks="grid").price)
 
 

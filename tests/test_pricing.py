@@ -8,7 +8,7 @@ import math
 import numpy as np
 import pytest
 
-from stopline import DirectSweep, GridSpec, InputError, Market, Option, ProjectedSOR, Result, price
+from stopline import GridSpec, InputError, Market, Option, ProjectedSOR, Result, price
 
 from ._bsm import bsm
 
@@ -177,10 +177,9 @@ def test_kim_ma_choe_converged_values(s: float, expected: float) -> None:
 
 @pytest.mark.parametrize("kind,r,q", [("put", 0.05, 0.0), ("call", 0.03, 0.07), ("put", 0.02, 0.05)])
 def test_direct_and_psor_agree_on_the_same_grid(kind: str, r: float, q: float) -> None:
-    # common practice: both solve the same discrete complementarity problem exactly (the
-    # plain Crank-Nicolson one: the direct sweep without the fitted boundary).
+    # common practice: both solve the same discrete complementarity problem exactly.
     opt, mkt = Option(kind, 100.0, 0.75), Market(95.0, r, 0.3, q)
-    d = price(opt, mkt, grid=GridSpec(301, 80), method=DirectSweep(fitted=False))
+    d = price(opt, mkt, grid=GridSpec(301, 80))
     p = price(opt, mkt, grid=GridSpec(301, 80), method=ProjectedSOR(tol=1e-13))
     assert p.price == pytest.approx(d.price, abs=1e-8 * 100.0)
     assert p.stats.psor_iterations > 0 and d.stats.psor_iterations == 0

@@ -1357,11 +1357,11 @@ def boundary_spots(boundary_x, strike, fit, decreasing, raw, spot):
 
 @njit(cache=True, inline="always")
 def _solve_flat(is_put, american, expiry, rate, div_yield, vol, x_min, h, n, strike_index,
-                h_coef, unit_tau, unit_dt, unit_theta, n_par, bnd):
+                h_coef, unit_tau, unit_dt, unit_theta, n_par, bnd, fitted):
     """One grid of the pair: payoff, plan, march (with ``n_par`` tangents: 0, or 2 for vol
-    and rate); returns the values, the exercise value at valuation and the tangents. An
-    American option is marched with the boundary fitted (frame "x", flat data, no cash
-    dividends: where :func:`stopline.solve.fitted_boundary` holds)."""
+    and rate); returns the values, the exercise value at valuation and the tangents. With
+    ``fitted`` an American option is marched with the boundary fitted (frame "x", flat data,
+    no cash dividends: where :func:`stopline.solve.fitted_boundary` holds)."""
     tau = expiry * unit_tau
     dt = expiry * unit_dt
     theta = unit_theta.copy()
@@ -1379,7 +1379,7 @@ def _solve_flat(is_put, american, expiry, rate, div_yield, vol, x_min, h, n, str
                              plan[4], dco, dfar)
     march_direct_tangents(
         v, ex, x_min, h, dt, theta, plan[0], plan[1], plan[2], plan[3], plan[4], plan[5],
-        plan[6], is_put, american, bnd, tan, dco, dfar, american,
+        plan[6], is_put, american, bnd, tan, dco, dfar, fitted and american,
     )
     for j in range(n):
         v[j] /= plan[6, m - 1]
@@ -1392,7 +1392,7 @@ def _solve_flat(is_put, american, expiry, rate, div_yield, vol, x_min, h, n, str
 def price_pair(
     is_put, american, expiry, rate, div_yield, vol, x_spot, strike, x_min, h, n, strike_index,
     coef_c, coef_f, unit_tau_c, unit_dt_c, unit_theta_c, unit_tau_f, unit_dt_f, unit_theta_f, n_par,
-    out, bnd_x, raw, spot,
+    out, bnd_x, raw, spot, fitted,
 ):
     """Both grids of a Richardson pair in frame "x" with flat data and the direct sweep.
 
@@ -1422,6 +1422,9 @@ def price_pair(
     bnd_x, raw, spot : ndarray, shape (fine steps,)
         Written: the fine grid's critical log-moneyness per step, ``strike e^x``, and its
         monotone fit.
+    fitted : bool
+        March an American option with the fitted boundary and BDF2 steps (method
+        ``"fitted"``) instead of plain Crank-Nicolson (method ``"direct"``).
 
     References
     ----------
@@ -1440,7 +1443,7 @@ def price_pair(
         v, payoff, tan = _solve_flat(
             is_put, american, expiry, rate, div_yield, vol, x_min, hg, ng, kg,
             coef_f if fine else coef_c, unit_tau, unit_dt_f if fine else unit_dt_c,
-            unit_theta_f if fine else unit_theta_c, n_par, bnd,
+            unit_theta_f if fine else unit_theta_c, n_par, bnd, fitted,
         )
         x_b = bnd[bnd.shape[0] - 1] if american else math.nan
         out[8 + 2 * g] = 0.0

@@ -6,6 +6,10 @@ the solver class; :func:`get_method` accepts a name or an instance.
 
 - ``"direct"``: the Brennan-Schwartz sweep, exact and O(n) when the exercise region is one
   interval touching the grid end (vanilla puts and calls with non-negative carry settings).
+- ``"fitted"``: the same sweep with the exercise boundary fitted inside its cell and
+  BDF2 steps after the implicit start (:class:`FittedSweep`); its error is a smooth function
+  of the grid, so the Richardson pair meets the accuracy presets' targets where plain
+  Crank-Nicolson's erratic error near the boundary does not (opt-in).
 - ``"psor"``: projected successive over-relaxation, general but iterative; reports sweeps and
   raises :class:`~stopline.errors.ConvergenceError` at its cap.
 """
@@ -22,7 +26,7 @@ from .errors import ConvergenceError, InputError
 from .grid import SpaceGrid
 from .operator import StepPlan
 
-__all__ = ["MarchReport", "DirectSweep", "ProjectedSOR", "METHODS", "get_method"]
+__all__ = ["MarchReport", "DirectSweep", "FittedSweep", "ProjectedSOR", "METHODS", "get_method"]
 
 
 @dataclass(frozen=True)
@@ -49,7 +53,7 @@ class MarchReport:
 
 @dataclass(frozen=True)
 class DirectSweep:
-    """Brennan-Schwartz direct sweep.
+    """Brennan-Schwartz direct sweep on the Crank-Nicolson steps (method ``"direct"``).
 
     Parameters
     ----------
@@ -57,8 +61,9 @@ class DirectSweep:
         Where it applies (see :func:`stopline.solve.fitted_boundary`), fit the exercise
         boundary inside its cell (ghost value at the first held node from smooth pasting)
         and take BDF2 steps after the implicit start, so that the error is a smooth function
-        of the grid and the Richardson pair removes it (default). ``False`` solves the plain
-        Crank-Nicolson complementarity problem, the one :class:`ProjectedSOR` solves.
+        of the grid and the Richardson pair removes it (:class:`FittedSweep`). ``False``
+        (default) solves the plain Crank-Nicolson complementarity problem, the one
+        :class:`ProjectedSOR` solves.
 
     References
     ----------
@@ -66,7 +71,7 @@ class DirectSweep:
     Journal of Finance 32(2).
     """
 
-    fitted: bool = True
+    fitted: bool = False
     name: str = "direct"
 
     def march(
@@ -86,6 +91,32 @@ class DirectSweep:
             fitted and self.fitted,
         )
         return MarchReport(bnd)
+
+
+@dataclass(frozen=True)
+class FittedSweep(DirectSweep):
+    """The direct sweep with a fitted exercise boundary and BDF2 steps (method ``"fitted"``).
+
+    Crank-Nicolson does not damp the high frequencies that the exercise constraint's moving
+    kink feeds in at every step, so near the boundary its error changes erratically with the
+    grid and Richardson extrapolation over the pair cannot remove it (measured over 1200
+    typical contracts at "standard": max 1.8e-5 x K, 25 contracts beyond 1e-6 x K, and
+    still 7e-6 x K with four times the time levels). This method keeps the Rannacher start
+    and the Brennan-Schwartz sweep, fits the boundary inside its cell (smooth pasting) and
+    takes L-stable BDF2 steps after the start: max 6.4e-7 x K on the same set. Where the
+    fit does not apply (cash dividends, term-structure breakpoints, frame "y") it is the
+    plain direct sweep.
+
+    References
+    ----------
+    Brennan, M. J. and Schwartz, E. S. (1977), The valuation of American put options,
+    Journal of Finance 32(2). Oosterlee, C. W. (2003), On multigrid for linear
+    complementarity problems with application to American-style options, Electron. Trans.
+    Numer. Anal. 15 (BDF2 for American options).
+    """
+
+    fitted: bool = True
+    name: str = "fitted"
 
 
 @dataclass(frozen=True)
@@ -144,6 +175,7 @@ class ProjectedSOR:
 #: Name -> solver class.
 METHODS: dict[str, type[DirectSweep] | type[ProjectedSOR]] = {
     "direct": DirectSweep,
+    "fitted": FittedSweep,
     "psor": ProjectedSOR,
 }
 

@@ -14,7 +14,7 @@ from ._validate import check_choice
 from .contract import Option
 from .daycount import DEFAULT_DAY_COUNT
 from .errors import InputError
-from .exercise import ExerciseMethod, ProjectedSOR, get_method
+from .exercise import DirectSweep, ExerciseMethod, ProjectedSOR, get_method
 from .greeks import (
     RATE_BUMP,
     VOL_BUMP,
@@ -93,8 +93,8 @@ class AccuracyPreset:
 #: Accuracy presets. Each solves on a grid and on the grid with half the resolution in space
 #: and time, and extrapolates (Richardson); see ``validation/`` for the measured errors.
 PRESETS: dict[str, AccuracyPreset] = {
-    "fast": AccuracyPreset("fast", 1e-4, 12.0, 4.0, 24, 0.05),
-    "standard": AccuracyPreset("standard", 1e-6, 32.0, 5.5, 100, 0.02),
+    "fast": AccuracyPreset("fast", 1e-4, 16.0, 4.0, 32, 0.04),
+    "standard": AccuracyPreset("standard", 1e-6, 20.0, 5.5, 100, 0.008),
     "fine": AccuracyPreset("fine", 1e-8, 120.0, 7.0, 600, 0.0015),
 }
 
@@ -637,8 +637,14 @@ def price(
         Spot, rate, yield, vol and valuation date.
     accuracy : {"fast", "standard", "fine"}
         Target absolute error relative to the strike over typical contracts: 1e-4, 1e-6, 1e-8.
-    method : {"direct", "psor"} or a solver instance
-        Solver of the early-exercise constraint (see :mod:`stopline.exercise`).
+        Met over 1200 typical American contracts by ``method="fitted"``; the default
+        Crank-Nicolson sweep misses it on about 2 % of them, where the exercise boundary
+        makes its error erratic (``benchmarks/accuracy_study.py``; README, Accuracy).
+    method : {"direct", "fitted", "psor"} or a solver instance
+        Solver of the early-exercise constraint (see :mod:`stopline.exercise`): ``"direct"``
+        Brennan-Schwartz on Crank-Nicolson steps (default), ``"fitted"`` the same sweep with
+        the boundary fitted in its cell and BDF2 steps after the Rannacher start, ``"psor"``
+        projected SOR on Crank-Nicolson steps.
     grid : GridSpec or (space_points, time_levels), optional
         Expert override of the finer grid; ``accuracy`` is then ignored.
     greeks : {"full", "grid"}
@@ -686,10 +692,10 @@ def price(
     t = option.time_to_expiry(market.valuation_date)
     if t == 0.0:
         return _expired(option, market, solver, t)
-    if (grid is None and solver.name == "direct" and getattr(solver, "fitted", True) and _ONE_CALL
+    if (grid is None and isinstance(solver, DirectSweep) and _ONE_CALL
             and not _extreme(option, market, t)):
         # the common case in one kernel call; None where it does not apply
-        result = _price_pair(option, market, t, accuracy, greeks)
+        result = _price_pair(option, market, t, accuracy, greeks, solver)
         if result is not None:
             return result
     k = option.strike
@@ -702,7 +708,7 @@ def price(
         problem = dataclasses.replace(problem, american=False)
         american = False
     if american and _two_boundaries_possible(option.is_put, problem.rate, problem.div_yield):
-        if solver.name == "direct":
+        if isinstance(solver, DirectSweep):
             solver = ProjectedSOR()
             warnings.append(
                 "rate and yield both negative: the exercise region may not touch the grid end, "
@@ -746,8 +752,8 @@ def price(
     tangents = (greeks == "full" and american and not swapped
                 and tangents_available(problem, space_c, solver))
     if tangents:
-        coarse, tan_c = solve_with_tangents(problem, space_c, time_c)
-        fine, tan_f = solve_with_tangents(problem, space_f, time_f)
+        coarse, tan_c = solve_with_tangents(problem, space_c, time_c, solver.fitted)
+        fine, tan_f = solve_with_tangents(problem, space_f, time_f, solver.fitted)
     else:
         coarse = solve_on(problem, space_c, time_c, solver)
         fine = solve_on(problem, space_f, time_f, solver)
@@ -858,7 +864,7 @@ def _domain(strike: float, x_min: float, h: float, n: int) -> tuple[float, float
 
 
 def _price_pair(
-    option: Option, market: Market, t: float, accuracy: str, greeks: str
+    option: Option, market: Market, t: float, accuracy: str, greeks: str, solver: DirectSweep,
 ) -> Result | None:
     """:func:`price` in one kernel call (:func:`stopline._kernels.price_pair`), or None
     where it does not apply.
@@ -893,7 +899,7 @@ def _price_pair(
     _kernels.price_pair(
         is_put, american, t, rate, q, vol, x_spot, k, x_min, h, n, k_idx,
         coefficients(h, rate, q, vol), coefficients(0.5 * h, rate, q, vol), *unit_c, *unit_f,
-        2 if tangents else 0, out, bnd[0], bnd[1], bnd[2],
+        2 if tangents else 0, out, bnd[0], bnd[1], bnd[2], solver.fitted,
     )
     o = out.tolist()
     rc = GridReadout(o[0], o[1], o[2], o[3] != 0.0)
@@ -910,7 +916,7 @@ def _price_pair(
     theta = theta_from_pde(market.spot, value, delta, gamma, rate, q, vol, rf.exercised)
     warnings = ([] if n < MAX_COARSE_NODES else [_CAP_WARNING]) + _health_warnings(
         abs(rf.value - rc.value) / 3.0, k, name, (value, delta, gamma, theta))
-    stats = SolveStats(2 * n - 1, 2 * levels, m_f, n, levels, "direct", 0, 0,
+    stats = SolveStats(2 * n - 1, 2 * levels, m_f, n, levels, solver.name, 0, 0,
                        _domain(k, x_min, 0.5 * h, 2 * n - 1), warnings=tuple(warnings))
     return Result(value, delta, gamma, theta, vega, rho, abs(rf.value - rc.value) / 3.0,
                   ExerciseBoundary(t * unit_f[0], bnd[2], bnd[1]), stats, option, market, t,

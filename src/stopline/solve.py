@@ -17,7 +17,7 @@ from ._types import FloatArray
 from .contract import Option
 from .dividends import dividend_schedule, present_value
 from .errors import InputError
-from .exercise import ExerciseMethod, MarchReport
+from .exercise import DirectSweep, ExerciseMethod, MarchReport
 from .greeks import theta_from_pde
 from .grid import (
     SpaceGrid,
@@ -234,15 +234,17 @@ def tangents_available(problem: PDEProblem, space: SpaceGrid, method: ExerciseMe
     the direct sweep."""
     return (
         problem.curves is None and not problem.has_events and space.frame == "x"
-        and method.name == "direct" and getattr(method, "fitted", True)
+        and isinstance(method, DirectSweep)
     )
 
 
 def solve_with_tangents(
-    problem: PDEProblem, space: SpaceGrid, time: TimeGrid
+    problem: PDEProblem, space: SpaceGrid, time: TimeGrid, fitted: bool = False
 ) -> tuple[GridSolution, FloatArray]:
     """:func:`solve` with the direct sweep, plus the exact derivatives of the values with
-    respect to the volatility and the rate (tangent-linear march, no bump).
+    respect to the volatility and the rate (tangent-linear march, no bump). ``fitted``:
+    march as method ``"fitted"`` does (:class:`~stopline.exercise.FittedSweep`) where
+    :func:`fitted_boundary` allows it.
 
     Returns
     -------
@@ -266,7 +268,7 @@ def solve_with_tangents(
     _kernels.march_direct_tangents(
         v, ex, space.x_min, space.h, plan.dt, plan.theta, plan.lo, plan.di, plan.up,
         plan.df_r, plan.df_q, plan.shift, plan.scale, problem.is_put, problem.american, bnd,
-        tan, dco, dfar, fitted_boundary(problem, space, time),
+        tan, dco, dfar, fitted and fitted_boundary(problem, space, time),
     )
     payoff = payoff_on(space, problem.is_put, float(plan.shift[-1]), ex=ex)
     return GridSolution(space, time, v, payoff, plan.drift, MarchReport(bnd)), tan

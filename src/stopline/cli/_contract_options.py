@@ -35,6 +35,7 @@ class Accuracy(str, Enum):
 
 class Method(str, Enum):
     direct = "direct"
+    fitted = "fitted"
     psor = "psor"
 
 
@@ -56,7 +57,12 @@ ValuationDateOpt = Annotated[
 ]
 AccuracyOpt = Annotated[Accuracy, typer.Option("--accuracy", help="fast, standard or fine.")]
 MethodOpt = Annotated[
-    Method, typer.Option("--method", help="direct (Brennan-Schwartz) or psor.")
+    Method,
+    typer.Option(
+        "--method",
+        help="direct (Brennan-Schwartz on Crank-Nicolson steps), fitted (boundary fitted in "
+        "its cell, BDF2 steps: meets the accuracy targets) or psor.",
+    ),
 ]
 DividendOpt = Annotated[
     list[str] | None,
