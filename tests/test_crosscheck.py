@@ -92,6 +92,55 @@ def test_vega_near_the_ends_of_the_vol_range():
         assert chk.vega == pytest.approx(exact, rel=0.02, abs=1e-3)
 
 
+def test_american_vega_agrees_with_fine_prices():
+    # vega of a flat American row comes with its price (tangents marched with the solution);
+    # checked against a central difference of "fine" prices (common practice), within the
+    # 0.1 % stated for Result.vega
+    chk = check_row(row(quote="9"))
+    opt, h = Option("put", 105.0, 1.0), 2e-3
+    up = price(opt, Market(100.0, 0.05, 0.3 + h, 0.02), accuracy="fine", greeks="grid").price
+    down = price(opt, Market(100.0, 0.05, 0.3 - h, 0.02), accuracy="fine", greeks="grid").price
+    assert chk.vega == pytest.approx((up - down) / (2 * h), rel=1e-3)
+
+
+class CountPrices:
+    """Test hook: count price() calls (the cross-check's and the implied-vol search's)."""
+
+    def __init__(self, monkeypatch: pytest.MonkeyPatch) -> None:
+        import stopline.crosscheck as cc
+        import stopline.pricing as pricing
+
+        self.calls: list[str] = []
+        real = pricing.price
+
+        def counted(*args, **kwargs):
+            self.calls.append(kwargs.get("greeks", "full"))
+            return real(*args, **kwargs)
+
+        monkeypatch.setattr(pricing, "price", counted)
+        monkeypatch.setattr(cc, "price", counted)
+
+
+@pytest.mark.parametrize(
+    ("edit", "most"),
+    [
+        ({}, 3),  # price with vega (one solve pair with tangents), then 1-2 for the implied vol
+        ({"style": "european"}, 3),  # vega from the model's identity, no re-solve
+        ({"dividends": "0.25:1.5", "div_yield": "0"}, 5),  # two bumped prices for vega
+    ],
+)
+def test_an_ok_row_costs_few_prices(monkeypatch, edit, most):
+    # what the cross-check costs per row, by count (not time): a quote rounded to 4 decimals
+    # from the row's own price; before the implied vol was started at the row's price with
+    # its vega, this took 5 to 9 prices
+    quote = f"{check_row(row(quote='9', **edit)).model_price:.4f}"
+    count = CountPrices(monkeypatch)
+    chk = check_row(row(quote=quote, **edit))
+    assert chk.status == "ok"
+    assert len(count.calls) <= most, count.calls
+    assert count.calls.count("full") <= 1
+
+
 def test_tolerance_floor_and_overrides():
     assert Tolerance().allowed(0.1) == 0.005  # floor wins for tiny vega
     assert Tolerance().allowed(40.0) == pytest.approx(0.1)  # 0.25 vol points x 40

@@ -30,7 +30,8 @@ intrinsic value of a deep in-the-money, long-dated American option can need 15 t
 Seeded start. A caller that has already priced the option (a cross-check prices each row at
 its own vol, with vega, before asking for the quote's implied vol) passes that price as
 ``start``: it becomes the search's first point at no cost, and the first step is Newton's
-with its vega, ``v1 = v0 - (P(v0) - quote) / vega``, instead of the European model's. A
+with its vega, ``v1 = v0 - (P(v0) - quote) / vega``, corrected for curvature as in Halley's
+method with the European model's ``vomma / vega``, instead of the European model's step. A
 quote within a few vol points of the start is then found in one or two price calls; the
 secant steps and safeguards after the first step are the same.
 """
@@ -249,6 +250,8 @@ def implied_vol(
     for Minimization without Derivatives, ch. 4 (safeguarded secant within a bracket).
     Manaster, S. and Koehler, G. (1982), The calculation of implied variances from the
     Black-Scholes model: a note, J. Finance 37(1) (Newton's method from a start point).
+    Halley, E. (1694), A new, exact and easy method of finding the roots of equations
+    generally, Phil. Trans. R. Soc. 18 (the curvature-corrected first step).
 
     Examples
     --------
@@ -292,6 +295,7 @@ def implied_vol_detail(
     bounds = quote_bounds(option, market, t)
     ftol = PRICE_TOLERANCE[acc] * k
     _check_quote(quote, bounds, ftol)
+    seed = _seed(start, start_vega, option, market, acc)
     calls = 0
     error_estimates: dict[float, float] = {}
 
@@ -326,7 +330,6 @@ def implied_vol_detail(
         )
     s_eff, r_avg, q_avg = _flat_equivalents(market, t)
     euro = _EuropeanModel(option.is_put, s_eff, k, t, r_avg, q_avg)
-    seed = _seed(start, start_vega, option, market, acc)
     if seed is not None:
         v0 = seed[0]
         error_estimates[v0] = seed[3]
@@ -402,8 +405,8 @@ def _search(
     identity by default); the stopping test is on the price itself.
 
     ``known = (price, vega)`` is the price at ``v0`` already computed (not priced again) and
-    the slope there (NaN if unknown); the first step is then Newton's when it stays within
-    a factor of two of ``v0`` (else the European model's).
+    the slope there (NaN if unknown); the first step is then Halley's (:func:`_halley`) when
+    it stays within a factor of two of ``v0`` (else the European model's).
 
     Returns the vol, the model price there and a vega estimate (slope of the last secant).
     """
@@ -436,7 +439,7 @@ def _search(
 
     v = min(max(v0, lo), hi)
     p = evaluate(v, None if known is None else known[0])
-    newton = math.nan if known is None else known[1]
+    vega0 = math.nan if known is None else known[1]
     while abs(p - quote) > ftol:
         a = below[0] if below is not None else lo
         b = above[0] if above is not None else hi
@@ -447,8 +450,8 @@ def _search(
                 f"implied vol: no convergence after {len(hist)} price calls (quote={quote!r}, "
                 f"bracket [{a:.6g}, {b:.6g}])")
         cand = None
-        if len(hist) == 1 and math.isfinite(newton):
-            cand = _halley(v, p - quote, newton, euro)
+        if len(hist) == 1 and math.isfinite(vega0):
+            cand = _halley(v, p - quote, vega0, euro)
             if not (0.5 * v <= cand <= 2.0 * v):
                 cand = None  # a long way off: the European model steps more safely
         if cand is None:
@@ -475,7 +478,8 @@ def _search(
         v = cand
         p = evaluate(v)
     best_v, best_p, _ = min(hist, key=lambda h: abs(h[1] - quote))
-    vega = _slope(hist, best_v, euro)
+    # the start's own vega when the quote is its price (no other point to take a slope from)
+    vega = vega0 if len(hist) == 1 and math.isfinite(vega0) else _slope(hist, best_v, euro)
     return best_v, best_p, vega
 
 
