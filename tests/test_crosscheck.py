@@ -405,7 +405,7 @@ class Stop:
 
 @pytest.mark.parametrize("workers", [1, 2])
 def test_interrupt_keeps_finished_rows_and_resume_finishes(tmp_path, workers):
-    book = small_book(tmp_path, n_ok=30)  # 32 rows, chunks of 4 on 2 processes
+    book = small_book(tmp_path, n_ok=30)  # 32 rows, chunks of 8 down to 1 on 2 processes
     out = tmp_path / "out"
     with pytest.raises(KeyboardInterrupt):
         run_crosscheck(book, out, workers=workers, on_progress=Stop(4))

@@ -1,7 +1,9 @@
 """Where a batch of rows is priced: this process, local processes, or a Dask cluster.
 
-Each executor takes ``(index, row)`` pairs, sends them out in chunks (to amortise the cost of
-shipping work to another process) to :func:`stopline.crosscheck.check_rows`, and yields each
+Each executor takes ``(index, row)`` pairs, sends them out in chunks (large ones first, to
+amortise the cost of shipping work to another process, shrinking to single rows at the end
+so that no worker idles; see :func:`chunked`) to :func:`stopline.crosscheck.check_rows`, and
+yields each
 chunk's ``(index, RowCheck)`` pairs as it finishes, in any order. ``close()`` cancels what
 has not started. Dask is imported only when a scheduler address is given.
 """
@@ -16,7 +18,7 @@ from typing import Protocol
 
 from .errors import InputError
 
-__all__ = ["Executor", "make_executor", "chunked"]
+__all__ = ["Executor", "make_executor", "chunked", "even_chunks", "MAX_CHUNK"]
 
 Pairs = Sequence[tuple[int, Mapping[str, object]]]
 
@@ -35,11 +37,38 @@ class Executor(Protocol):
     def close(self) -> None: ...
 
 
+#: Most rows in one chunk (the checkpoint and progress move chunk by chunk).
+MAX_CHUNK = 32
+
+
 def chunked(pairs: Pairs, n_workers: int) -> list[list[tuple[int, Mapping[str, object]]]]:
-    """Split into chunks: about four per worker (for balance), at most 32 rows each."""
+    """Split into chunks of decreasing size (guided scheduling), in order.
+
+    Each chunk takes the rows left over twice the number of workers (at most
+    :data:`MAX_CHUNK`, at least 1): large chunks while much is left keep the cost of shipping
+    work small, and small ones at the end leave no worker idle while another finishes a long
+    chunk (the last chunks are a row or two).
+
+    References
+    ----------
+    Polychronopoulos, C. D. and Kuck, D. J. (1987), Guided self-scheduling: a practical
+    scheduling scheme for parallel supercomputers, IEEE Trans. Computers C-36(12).
+    """
+    out = []
+    i, n, per = 0, len(pairs), 2 * max(n_workers, 1)
+    while i < n:
+        size = max(1, min(MAX_CHUNK, math.ceil((n - i) / per)))
+        out.append(list(pairs[i:i + size]))
+        i += size
+    return out
+
+
+def even_chunks(pairs: Pairs, n: int = 16) -> list[list[tuple[int, Mapping[str, object]]]]:
+    """Split into about ``n`` chunks of equal size (at most :data:`MAX_CHUNK` rows): for
+    this process, where a chunk is only the step of the progress and the checkpoint."""
     if not pairs:
         return []
-    size = max(1, min(32, math.ceil(len(pairs) / (4 * max(n_workers, 1)))))
+    size = max(1, min(MAX_CHUNK, math.ceil(len(pairs) / n)))
     return [list(pairs[i:i + size]) for i in range(0, len(pairs), size)]
 
 
@@ -51,7 +80,7 @@ class SerialExecutor:
     def map_chunks(self, pairs: Pairs, settings: object) -> Iterator[list]:
         from .crosscheck import check_rows
 
-        for chunk in chunked(pairs, 4):
+        for chunk in even_chunks(pairs):
             yield check_rows(chunk, settings)
 
     def drain(self) -> list[list]:
