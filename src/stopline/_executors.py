@@ -3,9 +3,8 @@
 Each executor takes ``(index, row)`` pairs, sends them out in chunks (large ones first, to
 amortise the cost of shipping work to another process, shrinking to single rows at the end
 so that no worker idles; see :func:`chunked`) to :func:`stopline.crosscheck.check_rows`, and
-yields each
-chunk's ``(index, RowCheck)`` pairs as it finishes, in any order. ``close()`` cancels what
-has not started. Dask is imported only when a scheduler address is given.
+yields each chunk's ``(index, RowCheck)`` pairs as it finishes, in any order. ``close()``
+cancels what has not started. Dask is imported only when a scheduler address is given.
 """
 
 from __future__ import annotations
