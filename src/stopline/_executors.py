@@ -3,8 +3,9 @@
 Each executor takes ``(index, row)`` pairs, sends them out in chunks (large ones first, to
 amortise the cost of shipping work to another process, shrinking to single rows at the end
 so that no worker idles; see :func:`chunked`) to :func:`stopline.crosscheck.check_rows`, and
-yields each chunk's ``(index, RowCheck)`` pairs as it finishes, in any order. ``close()``
-cancels what has not started. Dask is imported only when a scheduler address is given.
+yields each chunk's ``(index, RowCheck)`` pairs as it finishes, in any order. Another
+process gets only the cells a check reads and sends back plain tuples (:func:`check_packed`).
+``close()`` cancels what has not started. Dask is imported only when a scheduler address is given.
 """
 
 from __future__ import annotations
@@ -71,6 +72,33 @@ def even_chunks(pairs: Pairs, n: int = 16) -> list[list[tuple[int, Mapping[str, 
     return [list(pairs[i:i + size]) for i in range(0, len(pairs), size)]
 
 
+def _slim(chunk: list[tuple[int, Mapping[str, object]]]) -> list[tuple[int, dict]]:
+    """The chunk with only the cells a check reads (the schema's columns and the surplus
+    cells under ``None``): the other columns are carried through by the parent."""
+    from .crosscheck import OPTIONAL_COLUMNS, REQUIRED_COLUMNS
+
+    keep = (*REQUIRED_COLUMNS, *OPTIONAL_COLUMNS, None)
+    return [(i, {k: raw[k] for k in keep if k in raw}) for i, raw in chunk]
+
+
+def check_packed(chunk: list[tuple[int, Mapping[str, object]]], settings: object) -> list[tuple]:
+    """:func:`stopline.crosscheck.check_rows` in a worker, each RowCheck sent back as the
+    plain tuple of its fields (pickled in about a sixth of the time of the dataclass)."""
+    from dataclasses import fields
+
+    from .crosscheck import RowCheck, check_rows
+
+    names = [f.name for f in fields(RowCheck)]
+    return [(i, tuple(getattr(c, n) for n in names)) for i, c in check_rows(chunk, settings)]
+
+
+def _unpack(batch: list[tuple]) -> list:
+    """Inverse of :func:`check_packed`, in the parent."""
+    from .crosscheck import RowCheck
+
+    return [(i, RowCheck(*values)) for i, values in batch]
+
+
 class SerialExecutor:
     """Price in this process, chunk by chunk."""
 
@@ -107,13 +135,13 @@ class ProcessExecutor:
     def map_chunks(self, pairs: Pairs, settings: object) -> Iterator[list]:
         from concurrent.futures import as_completed
 
-        from .crosscheck import check_rows
-
-        self._futures = [self._pool.submit(check_rows, c, settings) for c in chunked(pairs, self.n)]
+        self._futures = [
+            self._pool.submit(check_packed, _slim(c), settings) for c in chunked(pairs, self.n)
+        ]
         self._yielded: set = set()
         for fut in as_completed(self._futures):
             self._yielded.add(fut)
-            yield fut.result()
+            yield _unpack(fut.result())
 
     def drain(self) -> list[list]:
         # workers ignore SIGINT, so chunks already running finish; queued ones are cancelled
@@ -146,10 +174,8 @@ class DaskExecutor:
     def map_chunks(self, pairs: Pairs, settings: object) -> Iterator[list]:
         from distributed import as_completed
 
-        from .crosscheck import check_rows
-
         self._futures = [
-            self._client.submit(check_rows, c, settings, pure=False)
+            self._client.submit(check_packed, _slim(c), settings, pure=False)
             for c in chunked(pairs, self.n)
         ]
         self._yielded: set = set()
@@ -157,11 +183,11 @@ class DaskExecutor:
             finished = as_completed(self._futures)
         for fut in finished:
             self._yielded.add(fut.key)
-            yield fut.result()
+            yield _unpack(fut.result())
 
     def drain(self) -> list[list]:
         done = [f for f in self._futures if f.status == "finished" and f.key not in self._yielded]
-        return [f.result() for f in done]
+        return [_unpack(f.result()) for f in done]
 
     def close(self) -> None:
         if self._futures:
@@ -174,7 +200,7 @@ def _unyielded(futures: list, yielded: set) -> list[list]:
     for f in futures:
         if f in yielded or not f.done() or f.cancelled() or f.exception() is not None:
             continue
-        out.append(f.result())
+        out.append(_unpack(f.result()))
     return out
 
 
