@@ -145,6 +145,14 @@ def test_an_ok_row_costs_few_prices(monkeypatch, edit, most):
     assert count.calls.count("full") <= 1
 
 
+def test_row_below_the_implied_vol_bracket_still_gets_an_implied_vol():
+    # the row's own vol (0.0005) is below the search's bracket [0.001, 5]: its price cannot
+    # start the search, which then starts as without a start
+    chk = check_row(row(vol="0.0005", quote="5.1"))
+    assert chk.status == "mismatch"
+    assert 0.001 < chk.implied_vol < 0.5 and "vol points from the input" in chk.note
+
+
 def test_tolerance_floor_and_overrides():
     assert Tolerance().allowed(0.1) == 0.005  # floor wins for tiny vega
     assert Tolerance().allowed(40.0) == pytest.approx(0.1)  # 0.25 vol points x 40

@@ -361,3 +361,21 @@ def test_start_from_another_option_market_or_accuracy_is_refused() -> None:
     # a start at another vol in the same market is what a start is for
     other = price(opt, Market(95.0, 0.04, 0.5, 0.01))
     assert implied_vol(opt, mkt, quote, start=other) == pytest.approx(implied_vol(opt, mkt, quote), abs=1e-8)
+
+
+def test_start_the_search_does_not_try_is_not_used() -> None:
+    # a start below the bracket's 0.001 (a legitimate price) or from the zero-volatility
+    # limit (priced "exact", no grid) leaves the answer as without a start
+    opt, mkt = Option("put", 100.0, 0.5), Market(95.0, 0.04, 0.3, 0.01)
+    plain = implied_vol(opt, mkt, 8.0)
+    low = price(opt, Market(95.0, 0.04, 0.0005, 0.01))
+    assert implied_vol(opt, mkt, 8.0, start=low) == pytest.approx(plain, abs=1e-8)
+    short, atm = Option("put", 100.0, 1e-11), Market(100.0, 0.04, 0.3, 0.01)
+    exact = price(short, atm)
+    assert exact.accuracy == "exact"
+    quote = 0.5 * price(short, Market(100.0, 0.04, 5.0, 0.01)).price  # some vol below 5 gives it
+    plain = implied_vol_detail(short, atm, quote)
+    assert 0.5 < plain.vol < 5.0
+    # both stop within 1e-10 x strike of the quote; vega here is only about 1e-4
+    seeded = implied_vol(short, atm, quote, start=exact)
+    assert seeded == pytest.approx(plain.vol, abs=4e-10 * 100.0 / plain.vega)

@@ -218,8 +218,9 @@ def implied_vol(
         Accuracy of the prices inverted (see :func:`stopline.price`).
     start : Result, optional
         A price already computed by :func:`stopline.price` for this option, at this
-        accuracy, in this market at any vol in :data:`VOL_BRACKET` (usually the market's
-        own): the search starts there without pricing it again, with a Newton step.
+        accuracy, in this market at any flat vol (usually the market's own): the search
+        starts there without pricing it again, with a Newton step (a start outside
+        :data:`VOL_BRACKET` is not used).
     start_vega : float, optional
         Slope of the price in the vol at ``start`` (per unit vol); default ``start.vega``
         (NaN when ``start`` was priced with ``greeks="grid"``, and then the first step is
@@ -357,7 +358,9 @@ def implied_vol_detail(
 def _seed(
     start: Result | None, start_vega: float | None, option: Option, market: Market, acc: str
 ) -> tuple[float, float, float, float] | None:
-    """``(vol, price, vega, error_estimate)`` of the start, checked; None without a start.
+    """``(vol, price, vega, error_estimate)`` of the start, checked; None without a start,
+    or when it is at a vol the search does not try (a vol curve, or outside
+    :data:`VOL_BRACKET`).
 
     The vega is NaN when neither ``start_vega`` nor ``start.vega`` is a positive number.
     """
@@ -365,12 +368,13 @@ def _seed(
         return None
     if start.option != option:
         raise InputError("start", start.option, f"prices another option than {option}")
-    if start.accuracy != acc:
+    # "exact": price() solved no grid (zero-volatility limit), whatever the accuracy asked
+    if start.accuracy not in (acc, "exact"):
         raise InputError("start", start.accuracy, f"was priced at another accuracy than {acc!r}")
     vol = start.market.vol
     lo, hi = VOL_BRACKET
     if not isinstance(vol, float) or not (lo <= vol <= hi):
-        raise InputError("start", vol, f"is not at a flat vol in [{lo:g}, {hi:g}]")
+        return None
     if dataclasses.replace(market, vol=vol) != start.market:
         raise InputError("start", start.market, "was priced in another market (other than the vol)")
     vega = start.vega if start_vega is None else check_real("start_vega", start_vega)
