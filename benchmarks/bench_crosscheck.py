@@ -8,8 +8,8 @@ repeated to ``--rows`` rows. Prints, for each worker count, rows per second of w
 (pool start-up included; kernels already loaded, as on a warm Dask worker or after the
 first chunk), the best of ``--repeats`` runs (slower repeats measure other load on the
 machine), the speed-up over one worker, and rows per CPU-second (this process and its
-workers), which other load on the machine changes little. The price() calls and grid
-solves per row are counted in a separate pass.
+workers), which other load on the machine changes little. The price() calls per row are
+counted in a separate pass.
 
     python benchmarks/bench_crosscheck.py --rows 480 --workers 1 2
     python benchmarks/bench_crosscheck.py --cold     # also a run in a fresh interpreter
@@ -54,34 +54,29 @@ def cpu_seconds() -> float:
 
 
 def count_work(book: Path, settings: CheckSettings) -> dict[str, float]:
-    """price() calls and grid solves per row, counted by wrapping them (not timed)."""
+    """price() calls per row, by what they compute, counted by wrapping price() (not timed).
+
+    Each call solves one Richardson pair of grids; ``"full"`` ones also march the vega and
+    rho tangents with it (the cross-check asks for them only where no re-solve is needed).
+    """
     import stopline.crosscheck as cc
     import stopline.pricing as pricing
 
-    counts = {"price": 0, "full": 0, "solve": 0, "tangent_solve": 0}
-    real = (pricing.price, pricing.solve, pricing.solve_with_tangents)
+    counts = {"price": 0, "full": 0, "dividends": 0}
+    real = pricing.price
 
-    def price(*a, **k):
+    def price(option, market, **kw):
         counts["price"] += 1
-        counts["full"] += k.get("greeks", "full") == "full"
-        return real[0](*a, **k)
-
-    def solve(*a, **k):
-        counts["solve"] += 1
-        return real[1](*a, **k)
-
-    def tangents(*a, **k):
-        counts["tangent_solve"] += 1
-        return real[2](*a, **k)
+        counts["full"] += kw.get("greeks", "full") == "full"
+        counts["dividends"] += bool(market.dividends)
+        return real(option, market, **kw)
 
     _, rows = read_book(book)
-    pricing.price, pricing.solve, pricing.solve_with_tangents = price, solve, tangents
-    cc.price = price
+    pricing.price = cc.price = price
     try:
         check_rows(list(enumerate(rows)), settings)
     finally:
-        pricing.price, pricing.solve, pricing.solve_with_tangents = real
-        cc.price = real[0]
+        pricing.price = cc.price = real
     return {k: v / len(rows) for k, v in counts.items()}
 
 
@@ -115,8 +110,8 @@ def main() -> None:
                   f"= {rate:.0f} rows/s, x{rate / base:.2f}; {args.rows / cpu:.0f} rows per "
                   f"CPU-second ({run.counts()})")
         work = count_work(book, settings)
-        print(f"per row: {work['price']:.2f} price() calls ({work['full']:.2f} with vega and "
-              f"rho), {work['solve']:.2f} grid solves + {work['tangent_solve']:.2f} with tangents")
+        print(f"per row: {work['price']:.2f} price() calls ({work['full']:.2f} asking for vega and "
+              f"rho, {work['dividends']:.2f} with cash dividends)")
         if args.cold:
             n = max(args.workers)
             code = ("import sys, time; t0 = time.perf_counter(); "
