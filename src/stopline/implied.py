@@ -375,7 +375,7 @@ def _seed(
     lo, hi = VOL_BRACKET
     if not isinstance(vol, float) or not (lo <= vol <= hi):
         return None
-    if dataclasses.replace(market, vol=vol) != start.market:
+    if start.market is not market and dataclasses.replace(market, vol=vol) != start.market:
         raise InputError("start", start.market, "was priced in another market (other than the vol)")
     vega = start.vega if start_vega is None else check_real("start_vega", start_vega)
     if not (vega > 0.0 and math.isfinite(vega)):
