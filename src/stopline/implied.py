@@ -32,8 +32,9 @@ its own vol, with vega, before asking for the quote's implied vol) passes that p
 ``start``: it becomes the search's first point at no cost, and the first step is Newton's
 with its vega, ``v1 = v0 - (P(v0) - quote) / vega``, corrected for curvature as in Halley's
 method with the European model's ``vomma / vega``, instead of the European model's step. A
-quote within a few vol points of the start is then found in one or two price calls; the
-secant steps and safeguards after the first step are the same.
+quote within a vol point of the start is then found in one to three price calls (one for
+most quotes rounded from the start's own price); the secant steps and safeguards after the
+first step are the same.
 """
 
 from __future__ import annotations
@@ -219,8 +220,8 @@ def implied_vol(
     start : Result, optional
         A price already computed by :func:`stopline.price` for this option, at this
         accuracy, in this market at any flat vol (usually the market's own): the search
-        starts there without pricing it again, with a Newton step (a start outside
-        :data:`VOL_BRACKET` is not used).
+        starts there without pricing it again, with a Newton step corrected for curvature
+        (a start outside :data:`VOL_BRACKET` is not used).
     start_vega : float, optional
         Slope of the price in the vol at ``start`` (per unit vol); default ``start.vega``
         (NaN when ``start`` was priced with ``greeks="grid"``, and then the first step is
