@@ -574,8 +574,8 @@ def check_row(raw: Mapping[str, object], settings: CheckSettings | None = None) 
     allowed = settings.tolerance.allowed(vega)
     iv_problem = ""
     try:
-        # the search starts from this row's own price and vega (Newton): a quote within a
-        # few vol points of the model costs one or two more prices
+        # the search starts from this row's own price and vega (Newton, with curvature): a
+        # quote near the model costs one or two more prices, within a vol point at most three
         iv = float(implied_vol(line.option, line.market, q, accuracy=settings.accuracy,
                                start=res, start_vega=vega))
     except (ImpliedVolError, StoplineError, ValueError) as exc:
