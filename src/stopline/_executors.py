@@ -13,7 +13,6 @@ from __future__ import annotations
 import math
 import os
 import signal
-from collections import deque
 from collections.abc import Iterator, Mapping, Sequence
 from typing import Protocol
 
@@ -124,11 +123,12 @@ def _ignore_sigint() -> None:
 
 
 class ProcessExecutor:
-    """Price on ``n`` local processes: this one and ``n - 1`` workers
-    (concurrent.futures.ProcessPoolExecutor).
+    """Price on ``n`` local processes (concurrent.futures.ProcessPoolExecutor); this one
+    only ships chunks and collects results.
 
-    This process takes the next chunk itself whenever the workers have enough queued (two
-    chunks each), so it computes instead of waiting, and one process fewer is started.
+    (Pricing chunks here too, with ``n - 1`` workers, measured slower side by side: x1.4
+    against x1.8 for two workers over one; likely because pricing here holds the interpreter
+    lock that the pool's threads need to feed the workers and collect their results.)
     """
 
     def __init__(self, n: int) -> None:
@@ -136,32 +136,19 @@ class ProcessExecutor:
 
         self.n = n
         self.description = f"{n} processes"
-        self._pool = ProcessPoolExecutor(max_workers=n - 1, initializer=_ignore_sigint)
+        self._pool = ProcessPoolExecutor(max_workers=n, initializer=_ignore_sigint)
         self._futures: list = []
         self._yielded: set = set()
 
     def map_chunks(self, pairs: Pairs, settings: object) -> Iterator[list]:
-        from concurrent.futures import FIRST_COMPLETED, wait
+        from concurrent.futures import as_completed
 
-        from .crosscheck import check_rows
-
-        todo = deque(chunked(pairs, self.n))
-        ahead = 2 * (self.n - 1)
-        pending: set = set()
-        while todo or pending:
-            while todo and len(pending) < ahead:
-                fut = self._pool.submit(check_packed, _slim(todo.popleft()), settings)
-                self._futures.append(fut)
-                pending.add(fut)
-            if todo:
-                yield check_rows(todo.popleft(), settings)
-                finished = {f for f in pending if f.done()}
-            else:
-                finished, _ = wait(pending, return_when=FIRST_COMPLETED)
-            for fut in finished:
-                pending.discard(fut)
-                self._yielded.add(fut)
-                yield _unpack(fut.result())
+        self._futures = [
+            self._pool.submit(check_packed, _slim(c), settings) for c in chunked(pairs, self.n)
+        ]
+        for fut in as_completed(self._futures):
+            self._yielded.add(fut)
+            yield _unpack(fut.result())
 
     def drain(self) -> list[list]:
         # workers ignore SIGINT, so chunks already running finish; queued ones are cancelled
