@@ -1,12 +1,18 @@
 """Throughput of the cross-check: American quotes checked per second, by number of workers.
 
-Each row costs one price, a vega (two more prices when the Result has no vega), an implied
-vol (4 to 6 prices) and, for a mismatch, a few alternative prices. The book is the clean
-American rows of the demo book, repeated to ``--rows`` rows. Prints rows per second of wall
-time (pool start-up included) for each worker count, the best of ``--repeats`` runs (slower
-repeats measure other load on the machine), and the speed-up over one worker.
+Each row costs one price with its vega (tangents marched with the solution where the inputs
+are flat; two bumped prices with cash dividends), the implied vol of the quote started at
+that price with that vega (one or two prices for a quote near the model), and, for a
+mismatch, a few alternative prices. The book is the clean American rows of the demo book,
+repeated to ``--rows`` rows. Prints, for each worker count, rows per second of wall time
+(pool start-up included; kernels already loaded, as on a warm Dask worker or after the
+first chunk), the best of ``--repeats`` runs (slower repeats measure other load on the
+machine), the speed-up over one worker, and rows per CPU-second (this process and its
+workers), which other load on the machine changes little. The price() calls per row are
+counted in a separate pass.
 
     python benchmarks/bench_crosscheck.py --rows 480 --workers 1 2
+    python benchmarks/bench_crosscheck.py --cold     # also a run in a fresh interpreter
 """
 
 from __future__ import annotations
@@ -14,11 +20,14 @@ from __future__ import annotations
 import argparse
 import csv
 import math
+import os
+import subprocess
+import sys
 import tempfile
 import time
 from pathlib import Path
 
-from stopline.crosscheck import CheckSettings, run_crosscheck
+from stopline.crosscheck import CheckSettings, check_rows, read_book, run_crosscheck
 
 ROOT = Path(__file__).resolve().parent.parent
 
@@ -38,6 +47,39 @@ def american_book(n: int, path: Path) -> Path:
     return path
 
 
+def cpu_seconds() -> float:
+    """CPU time of this process and of its finished children (the pool's workers)."""
+    t = os.times()
+    return t.user + t.system + t.children_user + t.children_system
+
+
+def count_work(book: Path, settings: CheckSettings) -> dict[str, float]:
+    """price() calls per row, by what they compute, counted by wrapping price() (not timed).
+
+    Each call solves one Richardson pair of grids; ``"full"`` ones also march the vega and
+    rho tangents with it (the cross-check asks for them only where no re-solve is needed).
+    """
+    import stopline.crosscheck as cc
+    import stopline.pricing as pricing
+
+    counts = {"price": 0, "full": 0, "dividends": 0}
+    real = pricing.price
+
+    def price(option, market, **kw):
+        counts["price"] += 1
+        counts["full"] += kw.get("greeks", "full") == "full"
+        counts["dividends"] += bool(market.dividends)
+        return real(option, market, **kw)
+
+    _, rows = read_book(book)
+    pricing.price = cc.price = price
+    try:
+        check_rows(list(enumerate(rows)), settings)
+    finally:
+        pricing.price = cc.price = real
+    return {k: v / len(rows) for k, v in counts.items()}
+
+
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--rows", type=int, default=480)
@@ -46,22 +88,41 @@ def main() -> None:
     ap.add_argument("--repeats", type=int, default=3)
     ap.add_argument("--dask", type=int, default=0,
                     help="also time a local Dask cluster (127.0.0.1) with this many workers")
+    ap.add_argument("--cold", action="store_true",
+                    help="also time one run with the largest worker count in a fresh "
+                         "interpreter (imports and kernel loading included)")
     args = ap.parse_args()
+    settings = CheckSettings(accuracy=args.accuracy)
     with tempfile.TemporaryDirectory() as tmp:
         book = american_book(args.rows, Path(tmp) / "book.csv")
         run_crosscheck(book, Path(tmp) / "warm", workers=1)  # numba cache, imports
         base = None
         for n in args.workers:
-            best = math.inf
+            best, cpu = math.inf, math.inf
             for r in range(args.repeats):
-                t0 = time.perf_counter()
-                run = run_crosscheck(book, Path(tmp) / f"w{n}-{r}", workers=n,
-                                     settings=CheckSettings(accuracy=args.accuracy))
+                c0, t0 = cpu_seconds(), time.perf_counter()
+                run = run_crosscheck(book, Path(tmp) / f"w{n}-{r}", workers=n, settings=settings)
                 best = min(best, time.perf_counter() - t0)
+                cpu = min(cpu, cpu_seconds() - c0)
             rate = args.rows / best
             base = base or rate
             print(f"{n} worker(s): {args.rows} American rows in {best:.2f} s wall "
-                  f"= {rate:.0f} rows/s, x{rate / base:.2f} ({run.counts()})")
+                  f"= {rate:.0f} rows/s, x{rate / base:.2f}; {args.rows / cpu:.0f} rows per "
+                  f"CPU-second ({run.counts()})")
+        work = count_work(book, settings)
+        print(f"per row: {work['price']:.2f} price() calls ({work['full']:.2f} asking for vega and "
+              f"rho, {work['dividends']:.2f} with cash dividends)")
+        if args.cold:
+            n = max(args.workers)
+            code = ("import sys, time; t0 = time.perf_counter(); "
+                    "from stopline.crosscheck import run_crosscheck; "
+                    f"run_crosscheck(sys.argv[1], sys.argv[2], workers={n}); "
+                    "print(time.perf_counter() - t0)")
+            out = subprocess.run([sys.executable, "-c", code, str(book), str(Path(tmp) / "cold")],
+                                 capture_output=True, text=True, check=True)
+            secs = float(out.stdout.strip())
+            print(f"cold, {n} worker(s), fresh interpreter (imports, kernel loading): "
+                  f"{secs:.2f} s = {args.rows / secs:.0f} rows/s")
         if args.dask:
             from distributed import LocalCluster
 
@@ -72,10 +133,11 @@ def main() -> None:
                 for r in range(args.repeats):
                     t0 = time.perf_counter()
                     run_crosscheck(book, Path(tmp) / f"dask-{r}", scheduler=cluster.scheduler_address,
-                                   settings=CheckSettings(accuracy=args.accuracy))
+                                   settings=settings)
                     best = min(best, time.perf_counter() - t0)
             rate = args.rows / best
             print(f"Dask, {args.dask} local worker(s): {rate:.0f} rows/s, x{rate / base:.2f}")
+
 
 if __name__ == "__main__":
     main()

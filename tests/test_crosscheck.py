@@ -74,22 +74,83 @@ def test_difference_is_quote_minus_model_and_tolerance_scales_with_vega():
     p = model(r)
     chk = check_row(row(style="european", div_yield="0", quote=p + 0.2))
     assert chk.difference == pytest.approx(0.2, abs=1e-9)
-    # vega by a vol bump against Black-Scholes-Merton vega (Black and Scholes 1973; closed form)
+    # vega (the model's identity vol T S^2 gamma for a flat European row, no re-solve) against
+    # Black-Scholes-Merton vega (Black and Scholes 1973; closed form)
     vega = bsm("put", 100, 105, 1.0, 0.05, 0.0, 0.3)["vega"]
     assert chk.vega == pytest.approx(vega, rel=1e-3)
     assert chk.tolerance == pytest.approx(0.0025 * chk.vega, rel=1e-12)
     assert chk.status == "mismatch"
 
 
-def test_vega_near_the_ends_of_the_vol_range():
-    # one-sided bumps where a central one would leave (0, 5]; compared with BSM vega
-    # (Black and Scholes 1973; closed form), loosely since a one-sided bump is first order
+@pytest.mark.parametrize("dividends", ["", "0.5:0.0001"])
+def test_vega_near_the_ends_of_the_vol_range(dividends):
+    # compared with BSM vega (Black and Scholes 1973; closed form). Without dividends the
+    # model's identity; with a (negligible) cash dividend, vega is bumped, one-sided where a
+    # central bump would leave (0, 5], so loosely since a one-sided bump is first order
     for vol in (4.995, 0.015):
-        r = row(style="european", div_yield="0", vol=vol)
-        chk = check_row(row(style="european", div_yield="0", vol=vol, quote=model(r)))
+        r = row(style="european", div_yield="0", vol=vol, dividends=dividends)
+        chk = check_row(row(style="european", div_yield="0", vol=vol, dividends=dividends,
+                            quote=model(r)))
         assert chk.status == "ok", chk.note
         exact = bsm("put", 100, 105, 1.0, 0.05, 0.0, vol)["vega"]
         assert chk.vega == pytest.approx(exact, rel=0.02, abs=1e-3)
+
+
+def test_american_vega_agrees_with_fine_prices():
+    # vega of a flat American row comes with its price (tangents marched with the solution);
+    # checked against a central difference of "fine" prices (common practice), within the
+    # 0.1 % stated for Result.vega
+    chk = check_row(row(quote="9"))
+    opt, h = Option("put", 105.0, 1.0), 2e-3
+    up = price(opt, Market(100.0, 0.05, 0.3 + h, 0.02), accuracy="fine", greeks="grid").price
+    down = price(opt, Market(100.0, 0.05, 0.3 - h, 0.02), accuracy="fine", greeks="grid").price
+    assert chk.vega == pytest.approx((up - down) / (2 * h), rel=1e-3)
+
+
+class CountPrices:
+    """Test hook: count price() calls (the cross-check's and the implied-vol search's)."""
+
+    def __init__(self, monkeypatch: pytest.MonkeyPatch) -> None:
+        import stopline.crosscheck as cc
+        import stopline.pricing as pricing
+
+        self.calls: list[str] = []
+        real = pricing.price
+
+        def counted(*args, **kwargs):
+            self.calls.append(kwargs.get("greeks", "full"))
+            return real(*args, **kwargs)
+
+        monkeypatch.setattr(pricing, "price", counted)
+        monkeypatch.setattr(cc, "price", counted)
+
+
+@pytest.mark.parametrize(
+    ("edit", "most"),
+    [
+        ({}, 3),  # price with vega (one solve pair with tangents), then 1-2 for the implied vol
+        ({"style": "european"}, 3),  # vega from the model's identity, no re-solve
+        ({"dividends": "0.25:1.5", "div_yield": "0"}, 5),  # two bumped prices for vega
+    ],
+)
+def test_an_ok_row_costs_few_prices(monkeypatch, edit, most):
+    # what the cross-check costs per row, by count (not time): a quote rounded to 4 decimals
+    # from the row's own price; before the implied vol was started at the row's price with
+    # its vega, this took 5 to 9 prices
+    quote = f"{check_row(row(quote='9', **edit)).model_price:.4f}"
+    count = CountPrices(monkeypatch)
+    chk = check_row(row(quote=quote, **edit))
+    assert chk.status == "ok"
+    assert len(count.calls) <= most, count.calls
+    assert count.calls.count("full") <= 1
+
+
+def test_row_below_the_implied_vol_bracket_still_gets_an_implied_vol():
+    # the row's own vol (0.0005) is below the search's bracket [0.001, 5]: its price cannot
+    # start the search, which then starts as without a start
+    chk = check_row(row(vol="0.0005", quote="5.1"))
+    assert chk.status == "mismatch"
+    assert 0.001 < chk.implied_vol < 0.5 and "vol points from the input" in chk.note
 
 
 def test_tolerance_floor_and_overrides():
@@ -356,7 +417,7 @@ class Stop:
 
 @pytest.mark.parametrize("workers", [1, 2])
 def test_interrupt_keeps_finished_rows_and_resume_finishes(tmp_path, workers):
-    book = small_book(tmp_path, n_ok=30)  # 32 rows, chunks of 4 on 2 processes
+    book = small_book(tmp_path, n_ok=30)  # 32 rows, chunks of 8 down to 1 on 2 processes
     out = tmp_path / "out"
     with pytest.raises(KeyboardInterrupt):
         run_crosscheck(book, out, workers=workers, on_progress=Stop(4))

@@ -297,3 +297,85 @@ def test_implied_vol_keeps_dividends_and_curves() -> None:
     opt = Option("call", 95.0, 1.0)
     p = price(opt, mkt).price
     assert implied_vol(opt, mkt, p) == pytest.approx(0.3, abs=1e-6)
+
+
+# --------------------------------------------------------------------------- seeded start
+
+
+@pytest.mark.parametrize("shift", [0.0, 0.001, 0.01, 0.05])
+def test_seeded_start_finds_the_same_vol(shift: float) -> None:
+    # common practice: a root search started at a priced point (Newton/Halley first step)
+    # returns the root the unseeded search returns, to the search's own tolerance: both stop
+    # within 1e-10 x strike of the quote, so the vols differ by at most about 2e-10 x strike
+    # over the vega (a factor 2 more for the slope's variation between them).
+    for row in SPREAD:
+        opt, mkt, vol = _case(row)
+        k = opt.strike
+        quote = price(opt, Market(mkt.spot, mkt.rate, vol + shift, mkt.div_yield), greeks="grid").price
+        plain = implied_vol_detail(opt, mkt, quote)
+        seeded = implied_vol_detail(opt, mkt, quote, start=price(opt, mkt))
+        assert abs(seeded.model_price - quote) <= 1e-10 * k
+        assert abs(seeded.vol - plain.vol) <= 4e-10 * k / plain.vega, row
+
+
+def test_seeded_start_needs_few_prices_near_the_start() -> None:
+    # The point of a start: a quote near the start's own price costs one or two prices
+    # (count, not time). At the start's price none is needed, and the start's vega is kept.
+    within_tenth, within_one = [], []
+    for row in SPREAD:
+        opt, mkt, vol = _case(row)
+        start = price(opt, mkt)
+        own = implied_vol_detail(opt, mkt, start.price, start=start)
+        assert own.price_calls == 0 and own.vol == vol and own.vega == start.vega
+        for shift, calls in ((0.001, within_tenth), (0.01, within_one)):
+            bumped = Market(mkt.spot, mkt.rate, vol + shift, mkt.div_yield)
+            quote = price(opt, bumped, greeks="grid").price
+            calls.append(implied_vol_detail(opt, mkt, quote, start=start).price_calls)
+    within_tenth.sort()
+    assert within_tenth[len(within_tenth) // 2] <= 2 and max(within_tenth) <= 3
+    assert max(within_one) <= 4
+
+
+def test_seeded_start_without_vega_uses_the_european_step() -> None:
+    # a start priced with greeks="grid" has no vega: the search still starts there
+    opt, mkt = Option("put", 100.0, 0.5), Market(95.0, 0.04, 0.3, 0.01)
+    start = price(opt, mkt, greeks="grid")
+    quote = price(opt, Market(95.0, 0.04, 0.31, 0.01)).price
+    res = implied_vol_detail(opt, mkt, quote, start=start)
+    assert abs(res.model_price - quote) <= 1e-10 * 100.0
+    assert res.vol == pytest.approx(0.31, abs=1e-5)
+    assert implied_vol(opt, mkt, quote, start=start, start_vega=20.0) == pytest.approx(res.vol, abs=1e-8)
+
+
+def test_start_from_another_option_market_or_accuracy_is_refused() -> None:
+    opt, mkt = Option("put", 100.0, 0.5), Market(95.0, 0.04, 0.3, 0.01)
+    quote = 8.0
+    cases = [
+        (price(Option("put", 101.0, 0.5), mkt), "another option"),
+        (price(opt, Market(96.0, 0.04, 0.3, 0.01)), "another market"),
+        (price(opt, mkt, accuracy="fast"), "another accuracy"),
+    ]
+    for start, fragment in cases:
+        with pytest.raises(InputError, match=f"start=.*{fragment}"):
+            implied_vol(opt, mkt, quote, start=start)
+    # a start at another vol in the same market is what a start is for
+    other = price(opt, Market(95.0, 0.04, 0.5, 0.01))
+    assert implied_vol(opt, mkt, quote, start=other) == pytest.approx(implied_vol(opt, mkt, quote), abs=1e-8)
+
+
+def test_start_the_search_does_not_try_is_not_used() -> None:
+    # a start below the bracket's 0.001 (a legitimate price) or from the zero-volatility
+    # limit (priced "exact", no grid) leaves the answer as without a start
+    opt, mkt = Option("put", 100.0, 0.5), Market(95.0, 0.04, 0.3, 0.01)
+    plain = implied_vol(opt, mkt, 8.0)
+    low = price(opt, Market(95.0, 0.04, 0.0005, 0.01))
+    assert implied_vol(opt, mkt, 8.0, start=low) == pytest.approx(plain, abs=1e-8)
+    short, atm = Option("put", 100.0, 1e-11), Market(100.0, 0.04, 0.3, 0.01)
+    exact = price(short, atm)
+    assert exact.accuracy == "exact"
+    quote = 0.5 * price(short, Market(100.0, 0.04, 5.0, 0.01)).price  # some vol below 5 gives it
+    plain = implied_vol_detail(short, atm, quote)
+    assert 0.5 < plain.vol < 5.0
+    # both stop within 1e-10 x strike of the quote; vega here is only about 1e-4
+    seeded = implied_vol(short, atm, quote, start=exact)
+    assert seeded == pytest.approx(plain.vol, abs=4e-10 * 100.0 / plain.vega)

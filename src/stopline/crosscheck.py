@@ -34,7 +34,7 @@ from .daycount import DEFAULT_DAY_COUNT, parse_date, year_fraction
 from .errors import InputError, StoplineError
 from .implied import ImpliedVolError, implied_vol
 from .market import VOL_RANGE, Market
-from .pricing import PRESETS, price
+from .pricing import PRESETS, Result, price
 
 __all__ = [
     "REQUIRED_COLUMNS",
@@ -511,8 +511,17 @@ def _fmt(x: float) -> str:
     return "" if math.isnan(x) else f"{x:.6f}"
 
 
-def _vega(line: QuoteLine, res: object, accuracy: str) -> float:
-    vega = getattr(res, "vega", math.nan)
+def _greeks_for(line: QuoteLine) -> str:
+    """``greeks=`` for the row's price: ``"full"`` where price() gets vega from the solve
+    itself (flat inputs without cash dividends: tangents marched with an American solution,
+    an identity of the model for a European one), ``"grid"`` where its vega would be four
+    re-solves of the grid pair (cash dividends), cheaper here as two bumped prices."""
+    return "grid" if line.market.dividends else "full"
+
+
+def _vega(line: QuoteLine, res: Result, accuracy: str) -> float:
+    """The Result's vega, else a central difference of prices at the vol +- VEGA_BUMP."""
+    vega = res.vega
     if math.isfinite(vega):
         return float(vega)
     m = line.market
@@ -520,7 +529,9 @@ def _vega(line: QuoteLine, res: object, accuracy: str) -> float:
     down = m.vol - VEGA_BUMP if m.vol > 2.0 * VEGA_BUMP else m.vol
 
     def at(v: float) -> float:
-        return res.price if v == m.vol else price(line.option, replace(m, vol=v), accuracy=accuracy).price
+        if v == m.vol:
+            return res.price
+        return price(line.option, replace(m, vol=v), accuracy=accuracy, greeks="grid").price
 
     return (at(up) - at(down)) / (up - down)
 
@@ -553,7 +564,7 @@ def check_row(raw: Mapping[str, object], settings: CheckSettings | None = None) 
     q = line.quote
     moneyness = line.option.strike / line.market.spot
     try:
-        res = price(line.option, line.market, accuracy=settings.accuracy, greeks="grid")
+        res = price(line.option, line.market, accuracy=settings.accuracy, greeks=_greeks_for(line))
         vega = _vega(line, res, settings.accuracy)
     except (StoplineError, ValueError) as exc:
         return RowCheck(note=f"pricing failed: {exc}", quote=q, moneyness=moneyness)
@@ -563,7 +574,10 @@ def check_row(raw: Mapping[str, object], settings: CheckSettings | None = None) 
     allowed = settings.tolerance.allowed(vega)
     iv_problem = ""
     try:
-        iv = float(implied_vol(line.option, line.market, q, accuracy=settings.accuracy))
+        # the search starts from this row's own price and vega (Newton, with curvature): a
+        # quote near the model costs one or two more prices, within a vol point at most three
+        iv = float(implied_vol(line.option, line.market, q, accuracy=settings.accuracy,
+                               start=res, start_vega=vega))
     except (ImpliedVolError, StoplineError, ValueError) as exc:
         iv, iv_problem = None, str(exc)
     base = RowCheck(

@@ -26,6 +26,15 @@ The search is a safeguarded secant method inside the bracket ``[0.001, 5]``:
 
 A typical contract needs 2 to 6 price calls at ``"standard"``; a quote barely above the
 intrinsic value of a deep in-the-money, long-dated American option can need 15 to 20.
+
+Seeded start. A caller that has already priced the option (a cross-check prices each row at
+its own vol, with vega, before asking for the quote's implied vol) passes that price as
+``start``: it becomes the search's first point at no cost, and the first step is Newton's
+with its vega, ``v1 = v0 - (P(v0) - quote) / vega``, corrected for curvature as in Halley's
+method with the European model's ``vomma / vega``, instead of the European model's step. A
+quote within a vol point of the start is then found in one to three price calls (one for
+most quotes rounded from the start's own price); the secant steps and safeguards after the
+first step are the same.
 """
 
 from __future__ import annotations
@@ -34,11 +43,15 @@ import dataclasses
 import math
 from collections.abc import Callable
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 from ._validate import check_choice, check_real
 from .contract import Option
 from .errors import ConvergenceError, InputError
 from .market import Market
+
+if TYPE_CHECKING:
+    from .pricing import Result
 
 __all__ = [
     "ImpliedVolError",
@@ -189,7 +202,8 @@ def quote_bounds(option: Option, market: Market, time_to_expiry: float) -> Quote
 
 
 def implied_vol(
-    option: Option, market: Market, quote: float, *, accuracy: str = "standard"
+    option: Option, market: Market, quote: float, *, accuracy: str = "standard",
+    start: Result | None = None, start_vega: float | None = None,
 ) -> float:
     """The flat volatility at which stopline's price of ``option`` equals ``quote``.
 
@@ -203,6 +217,15 @@ def implied_vol(
         Observed option price, in the currency of the spot and strike.
     accuracy : {"fast", "standard", "fine"}
         Accuracy of the prices inverted (see :func:`stopline.price`).
+    start : Result, optional
+        A price already computed by :func:`stopline.price` for this option, at this
+        accuracy, in this market at any flat vol (usually the market's own): the search
+        starts there without pricing it again, with a Newton step corrected for curvature
+        (a start outside :data:`VOL_BRACKET` is not used).
+    start_vega : float, optional
+        Slope of the price in the vol at ``start`` (per unit vol); default ``start.vega``
+        (NaN when ``start`` was priced with ``greeks="grid"``, and then the first step is
+        the European model's).
 
     Returns
     -------
@@ -227,6 +250,10 @@ def implied_vol(
     Brenner, M. and Subrahmanyam, M. G. (1988), A simple formula to compute the implied
     standard deviation, Financial Analysts Journal 44(5). Brent, R. P. (1973), Algorithms
     for Minimization without Derivatives, ch. 4 (safeguarded secant within a bracket).
+    Manaster, S. and Koehler, G. (1982), The calculation of implied variances from the
+    Black-Scholes model: a note, J. Finance 37(1) (Newton's method from a start point).
+    Halley, E. (1694), A new, exact and easy method of finding the roots of equations
+    generally, Phil. Trans. R. Soc. 18 (the curvature-corrected first step).
 
     Examples
     --------
@@ -236,17 +263,27 @@ def implied_vol(
     >>> round(implied_vol(opt, mkt, q), 8)
     0.3
     """
-    return implied_vol_detail(option, market, quote, accuracy=accuracy).vol
+    return implied_vol_detail(option, market, quote, accuracy=accuracy, start=start,
+                              start_vega=start_vega).vol
 
 
 def implied_vol_detail(
-    option: Option, market: Market, quote: float, *, accuracy: str = "standard"
+    option: Option, market: Market, quote: float, *, accuracy: str = "standard",
+    start: Result | None = None, start_vega: float | None = None,
 ) -> ImpliedVolResult:
     """Like :func:`implied_vol`, returning the vol with the search's record.
+
+    ``price_calls`` counts the prices computed by the search (not ``start``).
 
     Returns
     -------
     ImpliedVolResult
+
+    Raises
+    ------
+    InputError
+        As :func:`implied_vol`; also naming ``start`` when it prices another option,
+        another market or at another accuracy.
     """
     from .pricing import price
 
@@ -260,6 +297,7 @@ def implied_vol_detail(
     bounds = quote_bounds(option, market, t)
     ftol = PRICE_TOLERANCE[acc] * k
     _check_quote(quote, bounds, ftol)
+    seed = _seed(start, start_vega, option, market, acc)
     calls = 0
     error_estimates: dict[float, float] = {}
 
@@ -294,7 +332,11 @@ def implied_vol_detail(
         )
     s_eff, r_avg, q_avg = _flat_equivalents(market, t)
     euro = _EuropeanModel(option.is_put, s_eff, k, t, r_avg, q_avg)
-    v0 = euro.initial_guess(quote)
+    if seed is not None:
+        v0 = seed[0]
+        error_estimates[v0] = seed[3]
+    else:
+        v0 = euro.initial_guess(quote)
     transform = None
     if option.is_american and bounds.lower_name == "intrinsic value" and bounds.lower > 0.0:
         # in the money: the time value grows like (vol - vol*)^2 where the spot leaves the
@@ -302,7 +344,8 @@ def implied_vol_detail(
         floor = bounds.lower
         def transform(p: float) -> float:
             return math.sqrt(max(p - floor, 0.0))
-    vol, p, vega = _search(model, quote, euro, v0, lo, hi, ftol, bounds, transform)
+    vol, p, vega = _search(model, quote, euro, v0, lo, hi, ftol, bounds, transform,
+                           None if seed is None else seed[1:3])
     notes = []
     if vega < SMALL_VEGA * k:
         notes.append(f"vega {vega:.3g} per unit vol is small (< {SMALL_VEGA:g} x strike): the "
@@ -311,6 +354,34 @@ def implied_vol_detail(
         notes.append(f"the quote is within the price's error estimate ({error_estimates[vol]:.2g})"
                      f" of the {bounds.lower_name}: the vol is poorly determined by the quote")
     return ImpliedVolResult(float(vol), float(p), calls, float(vega), "; ".join(notes))
+
+
+def _seed(
+    start: Result | None, start_vega: float | None, option: Option, market: Market, acc: str
+) -> tuple[float, float, float, float] | None:
+    """``(vol, price, vega, error_estimate)`` of the start, checked; None without a start,
+    or when it is at a vol the search does not try (a vol curve, or outside
+    :data:`VOL_BRACKET`).
+
+    The vega is NaN when neither ``start_vega`` nor ``start.vega`` is a positive number.
+    """
+    if start is None:
+        return None
+    if start.option != option:
+        raise InputError("start", start.option, f"prices another option than {option}")
+    # "exact": price() solved no grid (zero-volatility limit), whatever the accuracy asked
+    if start.accuracy not in (acc, "exact"):
+        raise InputError("start", start.accuracy, f"was priced at another accuracy than {acc!r}")
+    vol = start.market.vol
+    lo, hi = VOL_BRACKET
+    if not isinstance(vol, float) or not (lo <= vol <= hi):
+        return None
+    if start.market is not market and dataclasses.replace(market, vol=vol) != start.market:
+        raise InputError("start", start.market, "was priced in another market (other than the vol)")
+    vega = start.vega if start_vega is None else check_real("start_vega", start_vega)
+    if not (vega > 0.0 and math.isfinite(vega)):
+        vega = math.nan
+    return vol, float(start.price), float(vega), float(start.error_estimate)
 
 
 def _check_quote(quote: float, bounds: QuoteBounds, ftol: float) -> None:
@@ -331,11 +402,16 @@ def _check_quote(quote: float, bounds: QuoteBounds, ftol: float) -> None:
 def _search(
     model: Callable[[float], float], quote: float, euro: _EuropeanModel, v0: float, lo: float, hi: float, ftol: float,
     bounds: QuoteBounds, transform: Callable[[float], float] | None = None,
+    known: tuple[float, float] | None = None,
 ) -> tuple[float, float, float]:
     """Safeguarded secant search for ``model(v) = quote`` in ``[lo, hi]``.
 
     The secant works on ``transform(price) - transform(quote)`` (an increasing transform;
     identity by default); the stopping test is on the price itself.
+
+    ``known = (price, vega)`` is the price at ``v0`` already computed (not priced again) and
+    the slope there (NaN if unknown); the first step is then Halley's (:func:`_halley`) when
+    it stays within a factor of two of ``v0`` (else the European model's).
 
     Returns the vol, the model price there and a vega estimate (slope of the last secant).
     """
@@ -346,9 +422,10 @@ def _search(
     hist: list[tuple[float, float, float]] = []  # (vol, price, transformed gap)
     steps: list[float] = []
 
-    def evaluate(v: float) -> float:
+    def evaluate(v: float, p: float | None = None) -> float:
         nonlocal below, above
-        p = model(v)
+        if p is None:
+            p = model(v)
         f = tr(p) - t_quote
         hist.append((v, p, f))
         if f < 0.0 and (below is None or v > below[0]):
@@ -366,7 +443,8 @@ def _search(
         return p
 
     v = min(max(v0, lo), hi)
-    p = evaluate(v)
+    p = evaluate(v, None if known is None else known[0])
+    vega0 = math.nan if known is None else known[1]
     while abs(p - quote) > ftol:
         a = below[0] if below is not None else lo
         b = above[0] if above is not None else hi
@@ -376,7 +454,13 @@ def _search(
             raise ConvergenceError(
                 f"implied vol: no convergence after {len(hist)} price calls (quote={quote!r}, "
                 f"bracket [{a:.6g}, {b:.6g}])")
-        cand = _candidate(hist, euro, quote)
+        cand = None
+        if len(hist) == 1 and math.isfinite(vega0):
+            cand = _halley(v, p - quote, vega0, euro)
+            if not (0.5 * v <= cand <= 2.0 * v):
+                cand = None  # a long way off: the European model steps more safely
+        if cand is None:
+            cand = _candidate(hist, euro, quote)
         if below is not None and above is not None:
             # Brent's safeguard: bisect when the step leaves the bracket or fails to shrink
             # to half the step before last
@@ -399,8 +483,18 @@ def _search(
         v = cand
         p = evaluate(v)
     best_v, best_p, _ = min(hist, key=lambda h: abs(h[1] - quote))
-    vega = _slope(hist, best_v, euro)
+    # the start's own vega when the quote is its price (no other point to take a slope from)
+    vega = vega0 if len(hist) == 1 and math.isfinite(vega0) else _slope(hist, best_v, euro)
     return best_v, best_p, vega
+
+
+def _halley(v: float, gap: float, vega: float, euro: _EuropeanModel) -> float:
+    """Halley's step from ``v`` to a zero of ``gap`` with slope ``vega``, the curvature
+    taken from the European model (``vomma / vega = d1 d2 / vol``); Newton's step when the
+    curvature term would change it by more than half."""
+    newton = -gap / vega
+    c = 0.5 * euro.vomma_over_vega(v) * newton
+    return v + newton / (1.0 + c) if abs(c) <= 0.5 else v + newton
 
 
 def _candidate(
@@ -461,6 +555,12 @@ class _EuropeanModel:
         sq = vol * math.sqrt(self.t)
         d1 = math.log(self.fwd_s / self.pv_k) / sq + 0.5 * sq
         return self.fwd_s * math.sqrt(self.t) * math.exp(-0.5 * d1 * d1) / math.sqrt(2 * math.pi)
+
+    def vomma_over_vega(self, vol: float) -> float:
+        """Second over first derivative of the price in the vol, ``d1 d2 / vol``."""
+        sq = vol * math.sqrt(self.t)
+        d1 = math.log(self.fwd_s / self.pv_k) / sq + 0.5 * sq
+        return d1 * (d1 - sq) / vol
 
     def invert(self, target: float) -> float | None:
         """European implied vol of ``target`` in ``[0.0005, 10]``, or None if none fits."""
