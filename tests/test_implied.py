@@ -315,7 +315,15 @@ def test_seeded_start_finds_the_same_vol(shift: float) -> None:
         plain = implied_vol_detail(opt, mkt, quote)
         seeded = implied_vol_detail(opt, mkt, quote, start=price(opt, mkt))
         assert abs(seeded.model_price - quote) <= 1e-10 * k
-        assert abs(seeded.vol - plain.vol) <= 4e-10 * k / plain.vega, row
+        a = price(opt, Market(mkt.spot, mkt.rate, seeded.vol, mkt.div_yield), greeks="grid")
+        b = price(opt, Market(mkt.spot, mkt.rate, plain.vol, mkt.div_yield), greeks="grid")
+        if (a.stats.space_points, a.stats.time_levels) == (b.stats.space_points, b.stats.time_levels):
+            assert abs(seeded.vol - plain.vol) <= 4e-10 * k / plain.vega, row
+        else:
+            # the grid is sized from the vol, so the model price steps (by far less than its
+            # error estimate) where the grid changes; a quote at such a step has a root on
+            # each side, and either is the answer to within the price's own accuracy
+            assert abs(seeded.vol - plain.vol) <= (4e-10 * k + a.error_estimate) / plain.vega, row
 
 
 def test_seeded_start_needs_few_prices_near_the_start() -> None:
