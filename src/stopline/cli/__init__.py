@@ -14,6 +14,7 @@ from . import demo as _demo
 from . import implied as _implied
 from . import price as _price
 from . import validate as _validate
+from ._common import first_run_notice
 
 app = typer.Typer(
     name="stopline",
@@ -28,6 +29,11 @@ app.command("boundary")(_boundary.boundary_cmd)
 app.command("implied")(_implied.implied_cmd)
 app.command("crosscheck")(_crosscheck.crosscheck_cmd)
 app.command("validate")(_validate.validate_cmd)
+
+
+@app.callback()
+def _before_any_command() -> None:
+    first_run_notice()
 
 
 def main() -> None:

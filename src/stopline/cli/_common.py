@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import functools
 import math
+import os
 from collections.abc import Callable
 from typing import Any, TypeVar
 
@@ -20,6 +21,40 @@ CAUTION = (
 )
 
 F = TypeVar("F", bound=Callable[..., Any])
+
+
+#: A kernel whose cached machine code means the others are cached too (compiled together).
+_MARKER_KERNEL = "_kernels.price_pair-"
+
+
+def kernels_cached(cache_dir: str | None = None) -> bool | None:
+    """Whether numba's on-disk cache holds stopline's compiled kernels.
+
+    None when it cannot tell (the package folder is not writable, so numba caches elsewhere,
+    or ``NUMBA_CACHE_DIR`` moves the cache).
+    """
+    if cache_dir is None:
+        if os.environ.get("NUMBA_CACHE_DIR"):
+            return None
+        package = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+        if not os.access(package, os.W_OK):
+            return None
+        cache_dir = os.path.join(package, "__pycache__")
+    try:
+        names = os.listdir(cache_dir)
+    except OSError:
+        return False
+    return any(n.startswith(_MARKER_KERNEL) and n.endswith(".nbi") for n in names)
+
+
+def first_run_notice(cache_dir: str | None = None) -> None:
+    """One line on stderr before the first run compiles the kernels (about ten seconds)."""
+    if kernels_cached(cache_dir) is False:
+        typer.echo(
+            "first run after install: compiling the numerical kernels once (about 10 s on 2 "
+            "cores); later runs load them from disk",
+            err=True,
+        )
 
 
 def fail(message: str, code: int = 2) -> typer.Exit:
