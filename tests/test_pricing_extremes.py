@@ -98,3 +98,23 @@ def test_presets_agree_in_the_low_vol_corner(accuracy: str) -> None:
                 a = price(Option(kind, k, 30.0), mkt, accuracy=accuracy, greeks="grid").price
                 b = price(Option(kind, k, 30.0), mkt, accuracy="fine", greeks="grid").price
                 assert abs(a - b) <= 1e-5 * k, (kind, r, q, m)
+
+
+def test_unreliable_gamma_is_flagged_and_fitted_theta_matches_the_expiry_derivative() -> None:
+    # Merton (1973): an American option is worth at least as much with a longer life, so its
+    # calendar theta is <= 0. A long, very volatile call deep in the money: Crank-Nicolson's
+    # undamped oscillations near the exercise boundary spoil its gamma (own computation: the
+    # two grids' gammas differ by 72 %, theta comes out +5.3), and the result says so; the
+    # fitted method's theta agrees with a central difference of prices in the expiry
+    # (common practice) to 1 %.
+    opt, mkt = Option("call", 100.0, 10.0), Market(300.0, 0.02, 1.0, div_yield=0.05)
+    cn = price(opt, mkt, greeks="grid")
+    assert any("gammas differ" in w for w in cn.stats.warnings)
+    fit = price(opt, mkt, greeks="grid", method="fitted")
+    assert not any("gammas differ" in w for w in fit.stats.warnings)
+    d = 1e-3
+    up, dn = (price(Option("call", 100.0, 10.0 + e), mkt, greeks="grid", method="fitted",
+                    accuracy="fine").price for e in (d, -d))
+    fd_theta = -(up - dn) / (2 * d)
+    assert fit.theta <= 0.0
+    assert fit.theta == pytest.approx(fd_theta, rel=1e-2)
