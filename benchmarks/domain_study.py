@@ -33,6 +33,7 @@ contract, so reruns cost only the presets.
 from __future__ import annotations
 
 import argparse
+import functools
 import itertools
 import json
 import math
@@ -142,7 +143,7 @@ def reference(c: dict) -> dict:
     return out
 
 
-def run_presets(c: dict) -> dict:
+def run_presets(c: dict, method: str = "direct") -> dict:
     """Prices of one contract at every preset, in units of the strike, with timings."""
     from stopline import price
 
@@ -151,7 +152,7 @@ def run_presets(c: dict) -> dict:
     for name in PRESET_NAMES:
         t0 = time.perf_counter()
         try:
-            res = price(opt, mkt, accuracy=name, greeks="grid")
+            res = price(opt, mkt, accuracy=name, greeks="grid", method=method)
             out[name] = res.price / c["strike"]
             out[name + "_warn"] = len(res.stats.warnings)
             out[name + "_nodes"] = res.stats.space_points
@@ -192,6 +193,7 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--refresh", action="store_true", help="recompute cached references")
     ap.add_argument("--top", type=int, default=8, help="rows in each worst-case list")
     ap.add_argument("--only-american", action="store_true")
+    ap.add_argument("--method", default="direct", help="solver: direct (default) or fitted")
     ns = ap.parse_args(argv)
     contracts = sample(ns.n, ns.seed)
     if ns.only_american:
@@ -209,8 +211,10 @@ def main(argv: list[str] | None = None) -> int:
             tmp = CACHE.with_suffix(".tmp")
             tmp.write_text(json.dumps(cache))
             os.replace(tmp, CACHE)
-        results = list(pool.map(run_presets, contracts, chunksize=1))
-    print(f"{len(contracts)} contracts ({ns.n} random + corners), {ns.workers} workers, "
+        results = list(pool.map(functools.partial(run_presets, method=ns.method), contracts,
+                                chunksize=1))
+    print(f"{len(contracts)} contracts ({ns.n} random + corners), method {ns.method!r}, "
+          f"{ns.workers} workers, "
           f"{time.perf_counter() - t_start:.0f} s wall\n")
     rows = [(c, res, cache[_key(c)]) for c, res in zip(contracts, results, strict=True)]
     dump = Path(tempfile.gettempdir()) / "stopline_domain_rows.json"
