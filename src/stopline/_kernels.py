@@ -617,6 +617,25 @@ def _tangent_step(
 
 
 @njit(cache=True, fastmath={"contract"})
+def _held_then_projected(v, rhs, aw, payoff, j, stop, step, y):
+    """From node ``j`` (``y`` the value before it): the continuation region, where the
+    ``max`` is not needed, then the plain projected loop from the first node where it would
+    bind (for one boundary it never does again). Shared by both substitutions."""
+    while j != stop:  # continuation region
+        t = rhs[j] - aw[j] * y
+        if not t > payoff[j]:
+            break
+        y = t
+        v[j] = y
+        j += step
+    while j != stop:  # anywhere the max binds again (not for one boundary)
+        y = rhs[j] - aw[j] * y
+        y = y if y > payoff[j] else payoff[j]
+        v[j] = y
+        j += step
+
+
+@njit(cache=True, fastmath={"contract"})
 def _substitute_projected(v, rhs, aw, payoff, start, stop, step):
     """Projected substitution ``v_j = max(rhs_j - aw_j v_{j-step}, payoff_j)``, ``j`` from
     ``start`` to ``stop`` (exclusive) by ``step``.
@@ -637,18 +656,7 @@ def _substitute_projected(v, rhs, aw, payoff, start, stop, step):
         y = payoff[j]
         v[j] = y
         j += step
-    while j != stop:  # continuation region
-        t = rhs[j] - aw[j] * y
-        if not t > payoff[j]:
-            break
-        y = t
-        v[j] = y
-        j += step
-    while j != stop:  # anywhere the max binds again (not for one boundary)
-        y = rhs[j] - aw[j] * y
-        y = y if y > payoff[j] else payoff[j]
-        v[j] = y
-        j += step
+    _held_then_projected(v, rhs, aw, payoff, j, stop, step, y)
 
 @njit(cache=True, fastmath={"contract"})
 def _exercised_run(v, rhs, aw, payoff, j, stop, step, y, bound):
@@ -726,18 +734,7 @@ def _substitute_fitted(v, rhs, aw, payoff, start, stop, step, ex, ka, kb, h):
         y = payoff[j]
         v[j] = y
         j += step
-    while j != stop:  # continuation region
-        t = rhs[j] - aw[j] * y
-        if not t > payoff[j]:
-            break
-        y = t
-        v[j] = y
-        j += step
-    while j != stop:  # anywhere the max binds again (not for one boundary)
-        y = rhs[j] - aw[j] * y
-        y = y if y > payoff[j] else payoff[j]
-        v[j] = y
-        j += step
+    _held_then_projected(v, rhs, aw, payoff, j, stop, step, y)
     return jg, ug, kg
 
 
