@@ -658,6 +658,7 @@ def _substitute_projected(v, rhs, aw, payoff, start, stop, step):
         j += step
     _held_then_projected(v, rhs, aw, payoff, j, stop, step, y)
 
+
 @njit(cache=True, fastmath={"contract"})
 def _exercised_run(v, rhs, aw, payoff, j, stop, step, y, bound):
     """The run of nodes that are surely exercised (gap at most ``-bound``), from ``j``:
