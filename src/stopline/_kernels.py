@@ -69,6 +69,11 @@ __all__ = [
     "boundary_spots",
     "price_pair",
     "PAIR_OUT",
+    "dividend_jump_tangents",
+    "dividends_ahead_spot",
+    "crossing",
+    "solve_spot_dividends",
+    "price_pair_spot_dividends",
 ]
 
 
@@ -1459,3 +1464,331 @@ def price_pair(
             else:
                 out[8 + 2 * g + i - 1] = val
     boundary_spots(bnd_x, strike, True, is_put, raw, spot)
+
+
+# ---------------------------------------------------------------------------------------------
+# cash dividends (spot model) in one call: the general path's _solve_with_dividends, compiled
+# ---------------------------------------------------------------------------------------------
+
+
+@njit(cache=True, inline="always")
+def _value_after_weights(v, x, x0, h, d, df_r, df_q, is_put, american):
+    """:func:`_value_after` and how it depends on the nodes: ``(value, j0, c0, c1, c2, c3)``
+    with ``d value = sum_i c_i dv[j0 + i]`` for a change ``dv`` of the values that moves
+    neither ``x`` nor the far field (``j0 = 0`` and all ``c_i = 0`` below the first node,
+    where the value is the far field's; one ``c_i = 1`` where the limiter clamps).
+
+    The same floating-point operations as :func:`_value_after`, so the same value."""
+    n = v.shape[0]
+    s = math.exp(x) - d
+    if s <= math.exp(x0):
+        return far_value(s if s > 0.0 else 0.0, df_r, df_q, is_put, american), 0, 0.0, 0.0, 0.0, 0.0
+    y = (math.log(s) - x0) / h
+    i = int(math.floor(y))
+    if i > n - 2:
+        i = n - 2
+    j0 = i - 1
+    if j0 < 0:
+        j0 = 0
+    if j0 > n - 4:
+        j0 = n - 4
+    t = y - j0
+    a0 = t - 1.0
+    a1 = t - 2.0
+    a2 = t - 3.0
+    c0 = -a0 * a1 * a2 / 6.0
+    c1 = t * a1 * a2 / 2.0
+    c2 = -t * a0 * a2 / 2.0
+    c3 = t * a0 * a1 / 6.0
+    val = c0 * v[j0] + c1 * v[j0 + 1] + c2 * v[j0 + 2] + c3 * v[j0 + 3]
+    lo_i = i if v[i] < v[i + 1] else i + 1
+    hi_i = i if v[i] > v[i + 1] else i + 1
+    if val < v[lo_i]:
+        return v[lo_i], lo_i, 1.0, 0.0, 0.0, 0.0
+    if val > v[hi_i]:
+        return v[hi_i], hi_i, 1.0, 0.0, 0.0, 0.0
+    return val, j0, c0, c1, c2, c3
+
+
+@njit(cache=True)
+def dividend_jump_tangents(v, tan, payoff, x0, h, d, df_r, df_q, is_put, american, out, tan_out):
+    """:func:`dividend_jump` of the spot model (``pv = 0``) with the derivatives of its values.
+
+    ``out`` gets the values :func:`dividend_jump` gives (the same operations, so the same
+    numbers) and ``tan_out[p]`` (shape ``tan``, (n_par, n)) the derivative of ``out`` for
+    the change ``tan[p]`` of ``v``, for a parameter that moves neither the dropped spot nor
+    the far field (the volatility): the same interpolation applied to the tangent, zero where
+    the exercise value binds or below the grid. In a cell averaged across a kink, the kink
+    is held where it is: the two-point Gauss sums change with its position by the jump of
+    the integrand there, which is zero (the held and exercise values meet at it) up to the
+    quadrature's error, and the bisection's kink moves in steps of ``h / 2^40``.
+    """
+    n = v.shape[0]
+    n_par = tan.shape[0]
+    half = 0.5 * h
+    g = 0.5 / math.sqrt(3.0)
+    x_zero = math.log(d) if d > 0.0 else -math.inf  # the dropped spot reaches zero here
+    for j in range(n):
+        xj = x0 + j * h
+        xl = xj - half
+        xr = xj + half
+        w, j0, c0, c1, c2, c3 = _value_after_weights(v, xj, x0, h, d, df_r, df_q, is_put, american)
+        e = payoff[j] if american else 0.0
+        xk = math.nan
+        if american:
+            gl = _value_after(v, xl, x0, h, d, df_r, df_q, is_put, True) - _exercise_value(xl, 0.0, is_put)
+            gr = _value_after(v, xr, x0, h, d, df_r, df_q, is_put, True) - _exercise_value(xr, 0.0, is_put)
+            if gl * gr < 0.0:
+                a = xl
+                b = xr
+                for _ in range(40):
+                    m = 0.5 * (a + b)
+                    gm = _value_after(v, m, x0, h, d, df_r, df_q, is_put, True) - _exercise_value(
+                        m, 0.0, is_put
+                    )
+                    if (gm < 0.0) == (gl < 0.0):
+                        a = m
+                    else:
+                        b = m
+                xk = 0.5 * (a + b)
+        if math.isnan(xk) and xl < x_zero < xr:
+            xk = x_zero
+        if math.isnan(xk):
+            held = w if w > e else e
+            out[j] = held
+            for p in range(n_par):
+                if w > e:
+                    tp = tan[p]
+                    tan_out[p, j] = c0 * tp[j0] + c1 * tp[j0 + 1] + c2 * tp[j0 + 2] + c3 * tp[j0 + 3]
+                else:
+                    tan_out[p, j] = 0.0
+            continue
+        total = 0.0
+        for p in range(n_par):
+            tan_out[p, j] = 0.0
+        for lo, hi in ((xl, xk), (xk, xr)):
+            c = 0.5 * (lo + hi)
+            ln = hi - lo
+            for z in (c - g * ln, c + g * ln):
+                wz, i0, b0, b1, b2, b3 = _value_after_weights(v, z, x0, h, d, df_r, df_q, is_put,
+                                                             american)
+                ez = _exercise_value(z, 0.0, is_put) if american else 0.0
+                if american and not wz > ez:
+                    total += 0.5 * ln * ez  # as _held_or_exercised: the larger value
+                    continue
+                total += 0.5 * ln * wz
+                for p in range(n_par):
+                    tp = tan[p]
+                    tan_out[p, j] += 0.5 * ln * (
+                        b0 * tp[i0] + b1 * tp[i0 + 1] + b2 * tp[i0 + 2] + b3 * tp[i0 + 3])
+        out[j] = total / h
+        for p in range(n_par):
+            tan_out[p, j] /= h
+
+
+@njit(cache=True, inline="always")
+def dividends_ahead_spot(tau, expiry, rate, div_yield, div_tau, div_amt, out):
+    """Per step: the dividends / strike still to come after its end, discounted to it at the
+    rate and from the ex-date to expiry at the yield (flat data), into ``out``: the amount by
+    which they lower the discounted forward of the spot model. The rule of
+    :func:`stopline.solve._dividends_ahead` with ``to_expiry=True``."""
+    for k in range(tau.shape[0]):
+        out[k] = 0.0
+    for i in range(div_tau.shape[0]):
+        t_d = div_tau[i]
+        t_ex = expiry - t_d
+        for k in range(tau.shape[0]):
+            if tau[k] > t_d * (1.0 + 1e-12) + 1e-14:
+                t_now = expiry - tau[k]
+                if t_now < 0.0:
+                    t_now = 0.0
+                grow = rate * (t_ex - t_now) + div_yield * (expiry - t_ex)
+                out[k] += div_amt[i] * math.exp(-grow)
+
+
+@njit(cache=True, inline="always")
+def crossing(gap, exercise, x_min, h, is_put):
+    """Where the held minus the exercise value changes sign at the in-the-money end, or NaN:
+    the rule of :func:`stopline.solve._crossing` (the critical log-moneyness just before an
+    ex-date, placed by linear interpolation of the gap)."""
+    n = gap.shape[0]
+    prev = -1
+    j = 1 if is_put else n - 2
+    stop = n - 1 if is_put else 0
+    step = 1 if is_put else -1
+    while j != stop:
+        if not (gap[j] <= 0.0 and exercise[j] > 0.0):
+            if prev < 0:
+                return math.nan
+            g0 = gap[prev]
+            g1 = gap[j]
+            frac = g0 / (g0 - g1) if g0 != g1 else 0.0
+            return x_min + (prev + (j - prev) * frac) * h
+        prev = j
+        j += step
+    return math.nan
+
+
+@njit(cache=True)
+def solve_spot_dividends(is_put, american, expiry, rate, div_yield, vol, x_min, h, n,
+                         strike_index, h_coef, tau, dt, theta, ev_idx, ev_amt, div_tau, div_amt,
+                         n_par, v, payoff, tan, bnd):
+    """One grid with cash dividends of the spot model, flat data, frame "x", the direct
+    sweep: :func:`stopline.solve.solve` for that case (the same steps, in one call).
+
+    The march goes segment by segment between ex-date levels (:func:`march_direct_tangents`);
+    at each ex-date the values jump (:func:`dividend_jump_tangents`) and the critical
+    log-moneyness just before it is placed (:func:`crossing`). The far-field values include
+    the dividends still to come (:func:`dividends_ahead_spot`).
+
+    Parameters
+    ----------
+    is_put, american : bool
+        Contract flags.
+    expiry, rate, div_yield, vol : float
+        Years to expiry and flat market data.
+    x_min, h, n, strike_index : float, float, int, int
+        The grid.
+    h_coef : tuple of 3 floats
+        Operator coefficients ``(lo, di, up)`` on spacing ``h``.
+    tau, dt, theta : ndarray, shape (m,)
+        The time grid (:func:`stopline.solve.time_grid_for`): a level on every ex-date.
+    ev_idx, ev_amt : ndarray, shape (n_ev,)
+        Levels of the ex-dates, increasing (int64), and the dividend / strike paid there.
+    div_tau, div_amt : ndarray, shape (n_div,)
+        Time to expiry of every ex-date and its dividend / strike (the far field's).
+    n_par : int
+        0, or 1 to march the vol tangent alongside (into ``tan[0]``).
+    v, payoff : ndarray, shape (n,)
+        Written: value / strike and exercise value / strike at valuation.
+    tan : ndarray, shape (n_par, n)
+        Written: d(value / strike)/d vol at valuation.
+    bnd : ndarray, shape (m + n_ev,)
+        Written: critical log-moneyness after each step and, after the steps ending at an
+        ex-date, one entry for the state just before it (as
+        :attr:`stopline.solve.GridSolution.boundary_times` orders them).
+    """
+    m = tau.shape[0]
+    plan = np.empty((7, m))
+    flat_plan(tau, h_coef, rate, div_yield, vol, False, plan)
+    adj = np.empty(m)
+    dividends_ahead_spot(tau, expiry, rate, div_yield, div_tau, div_amt, adj)
+    lim = math.exp(x_min)
+    for k in range(m):
+        a = adj[k]
+        if is_put:
+            cap = lim * plan[4, k]
+            if cap < a:
+                a = cap
+        plan[3, k] = plan[3, k] + a
+    ex = node_exp(x_min, h, n)
+    payoff_nodes(ex, is_put, 1.0, strike_index, v)
+    for j in range(n):
+        payoff[j] = v[j]
+    for p in range(n_par):
+        for j in range(n):
+            tan[p, j] = 0.0
+    work = np.empty(n)
+    held = np.empty(n)
+    tan_work = np.empty((n_par, n))
+    n_ev = ev_idx.shape[0]
+    e = 0
+    start = 0
+    b = 0
+    while start < m:
+        last = ev_idx[e] if e < n_ev else m - 1
+        ms = last + 1 - start
+        seg = np.empty((7, ms))
+        seg_t = np.empty((3, ms))
+        for k in range(ms):
+            for r in range(7):
+                seg[r, k] = plan[r, start + k]
+            seg_t[0, k] = tau[start + k]
+            seg_t[1, k] = dt[start + k]
+            seg_t[2, k] = theta[start + k]
+        dco = np.empty((2 if n_par else 0, 3, ms if n_par else 0))
+        dfar = np.empty((2 if n_par else 0, 2, ms if n_par else 0))
+        if n_par:
+            tangent_coefficients(h, vol, is_put, american, ex[0], ex[n - 1], seg_t[0], seg[3],
+                                 seg[4], dco, dfar)
+        sb = np.empty(ms)
+        march_direct_tangents(
+            v, ex, x_min, h, seg_t[1], seg_t[2], seg[0], seg[1], seg[2], seg[3], seg[4], seg[5],
+            seg[6], is_put, american, sb, tan, dco, dfar, False,
+        )
+        for k in range(ms):
+            bnd[b] = sb[k]
+            b += 1
+        if e < n_ev and last == ev_idx[e]:
+            d = ev_amt[e]
+            dividend_jump_tangents(v, tan, payoff, x_min, h, d, plan[3, last], plan[4, last],
+                                   is_put, american, work, tan_work)
+            if american:
+                value_after_drop(v, x_min, h, d, plan[3, last], plan[4, last], is_put, True, held)
+                for j in range(n):
+                    held[j] -= payoff[j]
+                bnd[b] = crossing(held, payoff, x_min, h, is_put)
+            else:
+                bnd[b] = math.nan
+            b += 1
+            for j in range(n):
+                v[j] = work[j]
+            for p in range(n_par):
+                for j in range(n):
+                    tan[p, j] = tan_work[p, j]
+            e += 1
+        start = last + 1
+
+
+@njit(cache=True)
+def price_pair_spot_dividends(
+    is_put, american, expiry, rate, div_yield, vol, x_spot, strike, x_min, h, n, strike_index,
+    coef_c, coef_f, tau_c, dt_c, theta_c, ev_idx_c, tau_f, dt_f, theta_f, ev_idx_f, ev_amt,
+    div_tau, div_amt, n_par, out, bnd_x, raw, spot,
+):
+    """:func:`price_pair` with cash dividends of the spot model: both grids of the Richardson
+    pair (:func:`solve_spot_dividends`) and their read-off at the spot.
+
+    ``tau_*, dt_*, theta_*`` are the coarse and fine time grids (a level on every ex-date),
+    ``ev_idx_*`` the levels of the ex-dates on each, ``ev_amt`` the dividend / strike paid
+    at each, ``div_tau, div_amt`` every dividend of the schedule (for the far field).
+    ``n_par`` is 0, or 1 for the vol tangent. ``out`` is laid out as :func:`price_pair`'s
+    (the rate tangents, not marched here, are zero); ``bnd_x`` (fine steps + ex-dates) gets
+    the fine grid's critical log-moneyness, ``raw`` and ``spot`` the critical spots (no
+    monotone fit: the boundary jumps at ex-dates).
+    """
+    for g in range(2):  # coarse, then fine; one call site each (compile time)
+        fine = g == 1
+        hg = 0.5 * h if fine else h
+        ng = 2 * n - 1 if fine else n
+        kg = strike_index
+        if fine and strike_index >= 0:
+            kg = 2 * strike_index
+        tau = tau_f if fine else tau_c
+        ev_idx = ev_idx_f if fine else ev_idx_c
+        bnd = bnd_x if fine else np.empty(tau.shape[0] + ev_idx.shape[0])
+        v = np.empty(ng)
+        payoff = np.empty(ng)
+        tan = np.empty((n_par, ng))
+        solve_spot_dividends(
+            is_put, american, expiry, rate, div_yield, vol, x_min, hg, ng, kg,
+            coef_f if fine else coef_c, tau, dt_f if fine else dt_c,
+            theta_f if fine else theta_c, ev_idx, ev_amt, div_tau, div_amt, n_par, v, payoff,
+            tan, bnd,
+        )
+        x_b = bnd[bnd.shape[0] - 1] if american else math.nan
+        out[8 + 2 * g] = 0.0
+        out[9 + 2 * g] = 0.0
+        for i in range(n_par + 1):  # the values, then the tangent (read like a European)
+            val, dlt, gam, exd = read_off(
+                v if i == 0 else tan[i - 1], payoff, x_min, hg, x_spot, strike,
+                american and i == 0, x_b if i == 0 else math.nan, is_put, 0.0,
+            )
+            if i == 0:
+                out[4 * g] = val
+                out[4 * g + 1] = dlt
+                out[4 * g + 2] = gam
+                out[4 * g + 3] = 1.0 if exd else 0.0
+            else:
+                out[8 + 2 * g] = val
+    boundary_spots(bnd_x, strike, False, is_put, raw, spot)

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import dataclasses
+import functools
 import math
 from dataclasses import dataclass, field
 
@@ -696,6 +697,8 @@ def price(
             and not _extreme(option, market, t)):
         # the common case in one kernel call; None where it does not apply
         result = _price_pair(option, market, t, accuracy, greeks, solver)
+        if result is None and market.dividends:
+            result = _price_pair_dividends(option, market, t, accuracy, greeks, solver)
         if result is not None:
             return result
     k = option.strike
@@ -945,6 +948,137 @@ def _price_pair(
                        _domain(k, x_min, 0.5 * h, 2 * n - 1), warnings=tuple(warnings))
     return Result(value, delta, gamma, theta, vega, rho, abs(rf.value - rc.value) / 3.0,
                   ExerciseBoundary(t * unit_f[0], bnd[2], bnd[1]), stats, option, market, t,
+                  name)
+
+
+@functools.lru_cache(maxsize=512)
+def _event_time_grids(
+    expiry: float, dividend_tau: tuple[float, ...], levels: int
+) -> tuple[TimeGrid, TimeGrid, tuple[int, ...], tuple[int, ...], FloatArray]:
+    """The Richardson pair's time grids for cash dividends of the spot model
+    (:func:`~stopline.solve.time_grid_for`, then refined), the level of each ex-date on each
+    (as :func:`stopline.solve._solve_with_dividends` finds it; -1 where none is close enough)
+    and the fine grid's boundary times (each ex-date twice: after it, then just before it).
+
+    Kept per process: the rows of a book share expiries and dividend dates, and the
+    implied-vol search prices one contract many times (arrays read-only)."""
+    shape = PDEProblem(True, True, expiry, 0.0, 0.0, 0.0, 0.0, dividend_tau=dividend_tau,
+                       dividend_amount=(0.0,) * len(dividend_tau))
+    time_c = time_grid_for(shape, levels)
+    time_f = time_c.refined()
+    found = []
+    for time in (time_c, time_f):
+        tau = time.tau
+        idx = []
+        for t_d in dividend_tau:
+            k = int(np.argmin(np.abs(tau - t_d)))
+            idx.append(k if abs(tau[k] - t_d) <= 1e-9 * max(1.0, t_d) else -1)
+        found.append(tuple(idx))
+    ends = sorted({k for k in found[1] if k >= 0})
+    b_tau = np.insert(time_f.tau, np.asarray(ends, dtype=np.int64) + 1, time_f.tau[ends])
+    for arr in (time_c.tau, time_c.dt, time_c.theta, time_f.tau, time_f.dt, time_f.theta, b_tau):
+        arr.flags.writeable = False
+    return time_c, time_f, found[0], found[1], b_tau
+
+
+def _events(idx: tuple[int, ...], amounts: tuple[float, ...]) -> tuple[FloatArray, FloatArray]:
+    """Levels of the ex-dates, increasing, and the dividend paid at each (summed per level, in
+    the schedule's order, as :func:`stopline.solve._solve_with_dividends` does)."""
+    events: dict[int, float] = {}
+    for k, d in zip(idx, amounts, strict=True):
+        events[k] = events.get(k, 0.0) + d
+    keys = sorted(events)
+    return np.asarray(keys, dtype=np.int64), np.asarray([events[k] for k in keys])
+
+
+def _price_pair_dividends(
+    option: Option, market: Market, t: float, accuracy: str, greeks: str, solver: DirectSweep,
+) -> Result | None:
+    """:func:`price` with cash dividends of the spot model in one kernel call per pair
+    (:func:`stopline._kernels.price_pair_spot_dividends`), or None where it does not apply.
+
+    It applies with flat rate, yield and vol, the spot model, a preset and the direct sweep
+    (the caller checks those two), and no ex-date on the expiry date; where every dividend
+    falls after expiry, the flat pair (:func:`_price_pair`) serves. The numbers are the
+    general path's (the same grids, steps, jumps and read-off), except vega: the vol tangent
+    marched with the solution and carried through the jumps
+    (:func:`stopline._kernels.dividend_jump_tangents`) instead of a central difference of
+    re-solved prices. Rho stays a central difference of two re-solves, here compiled.
+    """
+    if market.has_term_structure or market.dividend_model != "spot":
+        return None
+    problem = problem_from_market(option, market, t)
+    if not problem.dividend_tau:
+        # every dividend after expiry: the flat problem, with the schedule's warnings
+        flat_market = dataclasses.replace(market, dividends=())
+        if _extreme(option, flat_market, t):
+            return None
+        res = _price_pair(option, flat_market, t, accuracy, greeks, solver)
+        if res is None:
+            return None
+        stats = dataclasses.replace(res.stats, warnings=problem.warnings + res.stats.warnings)
+        return dataclasses.replace(res, market=market, stats=stats)
+    rate, q, vol = problem.rate, problem.div_yield, problem.vol
+    american, is_put = option.is_american, option.is_put
+    sd = vol * math.sqrt(t)
+    if min(problem.dividend_tau) <= 1e-12 or sd < MIN_SD_FOR_GRID or (
+        american and _two_boundaries_possible(is_put, rate, q)
+    ):
+        return None
+    name = check_choice("accuracy", accuracy, tuple(PRESETS))
+    preset = PRESETS[name]
+    k = option.strike
+    x_min, h, n, k_idx, _ = _preset_layout(problem.x_spot, t, rate, q, vol, american, preset)
+    levels = _coarse_levels(preset)
+    if not american and sd > LONG_SD:
+        levels = max(levels, min(math.ceil(levels * (sd / LONG_SD) ** 1.5), MAX_LONG_LEVELS))
+    time_c, time_f, idx_c, idx_f, b_tau = _event_time_grids(t, problem.dividend_tau, levels)
+    if -1 in idx_c or -1 in idx_f:
+        return None
+    ev_c, amt_c = _events(idx_c, problem.dividend_amount)
+    ev_f, amt_f = _events(idx_f, problem.dividend_amount)
+    if not np.array_equal(amt_c, amt_f):
+        return None
+    div_tau = np.asarray(problem.dividend_tau)
+    div_amt = np.asarray(problem.dividend_amount)
+    n_par = 0 if greeks == "grid" else 1
+
+    def pair(r: float, n_par: int, bnd: tuple[FloatArray, ...]) -> list[float]:
+        out = np.empty(_kernels.PAIR_OUT)
+        _kernels.price_pair_spot_dividends(
+            is_put, american, t, r, q, vol, problem.x_spot, k, x_min, h, n, k_idx,
+            coefficients(h, r, q, vol), coefficients(0.5 * h, r, q, vol), time_c.tau, time_c.dt,
+            time_c.theta, ev_c, time_f.tau, time_f.dt, time_f.theta, ev_f, amt_c, div_tau,
+            div_amt, n_par, out, *bnd,
+        )
+        return out.tolist()
+
+    bnd = np.empty((3, b_tau.shape[0]))
+    o = pair(rate, n_par, (bnd[0], bnd[1], bnd[2]))
+    rc = GridReadout(o[0], o[1], o[2], o[3] != 0.0)
+    rf = GridReadout(o[4], o[5], o[6], o[7] != 0.0)
+    value, delta, gamma = _richardson(rc, rf, option, market, q, t)
+    if greeks == "grid":
+        vega = rho = math.nan
+    elif rf.exercised:
+        vega = rho = 0.0
+    else:
+        vega = _extrapolate(o[8], o[10])
+        scratch = np.empty((3, b_tau.shape[0]))
+        bumped = []
+        for dr in (RATE_BUMP, -RATE_BUMP):
+            ob = pair(rate + dr, 0, (scratch[0], scratch[1], scratch[2]))
+            bumped.append(_extrapolate(ob[0], ob[4]))
+        rho = central_difference(bumped[0], bumped[1], RATE_BUMP)
+    theta = theta_from_pde(market.spot, value, delta, gamma, rate, q, vol, rf.exercised)
+    warnings = list(problem.warnings) + ([] if n < MAX_COARSE_NODES else [_CAP_WARNING])
+    warnings += _health_warnings(abs(rf.value - rc.value) / 3.0, k, name,
+                                 (value, delta, gamma, theta))
+    stats = SolveStats(2 * n - 1, time_f.levels, int(time_f.dt.shape[0]), n, time_c.levels,
+                       solver.name, 0, 0, _domain(k, x_min, 0.5 * h, 2 * n - 1),
+                       warnings=tuple(warnings))
+    return Result(value, delta, gamma, theta, vega, rho, abs(rf.value - rc.value) / 3.0,
+                  ExerciseBoundary(b_tau.copy(), bnd[2], bnd[1]), stats, option, market, t,
                   name)
 
 
