@@ -1361,8 +1361,8 @@ def boundary_spots(boundary_x, strike, fit, decreasing, raw, spot):
 @njit(cache=True, inline="always")
 def _solve_flat(is_put, american, expiry, rate, div_yield, vol, x_min, h, n, strike_index,
                 h_coef, unit_tau, unit_dt, unit_theta, n_par, bnd, fitted):
-    """One grid of the pair: payoff, plan, march (with ``n_par`` tangents: 0, or 2 for vol
-    and rate); returns the values, the exercise value at valuation and the tangents. With
+    """One grid of the pair: payoff, plan, march (with ``n_par`` tangents: 0, 1 for the vol,
+    or 2 for vol and rate); returns the values, the exercise value at valuation and the tangents. With
     ``fitted`` an American option is marched with the boundary fitted (frame "x", flat data,
     no cash dividends: where :func:`stopline.solve.fitted_boundary` holds)."""
     tau = expiry * unit_tau
@@ -1375,8 +1375,8 @@ def _solve_flat(is_put, american, expiry, rate, div_yield, vol, x_min, h, n, str
     v = np.empty(n)
     payoff_nodes(ex, is_put, 1.0, strike_index, v)
     tan = np.zeros((n_par, n))
-    dco = np.empty((n_par, 3, m if n_par else 0))
-    dfar = np.empty((n_par, 2, m if n_par else 0))
+    dco = np.empty((2 if n_par else 0, 3, m if n_par else 0))  # vol and rate, n_par 1 or 2
+    dfar = np.empty((2 if n_par else 0, 2, m if n_par else 0))
     if n_par:
         tangent_coefficients(h, vol, is_put, american, ex[0], ex[n - 1], tau, plan[3],
                              plan[4], dco, dfar)
@@ -1417,7 +1417,7 @@ def price_pair(
         Time grids of the coarse and fine grid for ``T = 1``
         (:func:`stopline.grid.unit_time_grid`).
     n_par : int
-        0, or 2 to march the vol and rate tangents alongside.
+        0, 1 to march the vol tangent alongside, or 2 for the vol and rate tangents.
     out : ndarray, shape (PAIR_OUT,)
         Written: value, delta, gamma, exercised (1.0 or 0.0) on the coarse, then the fine
         grid; then the vol and rate tangents read at the spot (coarse, then fine; money

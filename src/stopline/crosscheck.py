@@ -512,11 +512,11 @@ def _fmt(x: float) -> str:
 
 
 def _greeks_for(line: QuoteLine) -> str:
-    """``greeks=`` for the row's price: ``"full"`` where price() gets vega from the solve
-    itself (flat inputs without cash dividends: tangents marched with an American solution,
-    an identity of the model for a European one), ``"grid"`` where its vega would be four
-    re-solves of the grid pair (cash dividends), cheaper here as two bumped prices."""
-    return "grid" if line.market.dividends else "full"
+    """``greeks=`` for the row's price: ``"vega"``, so that price() gets vega from the solve
+    itself (flat inputs, with or without cash dividends: a tangent marched with the
+    solution, or for a European without dividends an identity of the model) and spends
+    nothing on rho, which the check does not use."""
+    return "vega"
 
 
 def _vega(line: QuoteLine, res: Result, accuracy: str) -> float:

@@ -118,7 +118,7 @@ MIN_SD_FOR_GRID = 2e-6
 _ONE_CALL = True
 
 #: What ``price(greeks=...)`` accepts.
-GREEKS = ("full", "grid")
+GREEKS = ("full", "grid", "vega")
 
 
 @dataclass(frozen=True)
@@ -216,16 +216,18 @@ class Result:
         value as time passes), from the Black-Scholes equation at valuation.
     vega : float
         dV/dvol per unit of volatility (divide by 100 for one vol point), for a parallel shift
-        of a vol curve. American with flat inputs, no cash dividends and the direct sweep: the
+        of a vol curve. American with flat inputs and the direct sweep, and any option with
+        flat inputs and cash dividends of the spot model (preset grids, direct sweep): the
         exact derivative of the discrete solution, marched alongside it (tangent-linear, no
-        bump), read at the spot and extrapolated like the price. Other American cases, or
-        with dividends or curves: a central difference of re-solved prices with the vol
-        bumped by 1 % of itself. European with flat inputs: ``vol T S^2 gamma``.
+        bump; through each dividend jump by the same interpolation), read at the spot and
+        extrapolated like the price. Other cases (curves, escrowed dividends, PSOR): a
+        central difference of re-solved prices with the vol bumped by 1 % of itself.
+        European with flat inputs and no cash dividends: ``vol T S^2 gamma``.
     rho : float
         dV/drate per unit of rate (divide by 10,000 for one basis point), for a parallel shift
         of a rate curve; computed like vega (tangent-linear; or the rate bumped by 1e-3; or,
         European with flat inputs, ``T (S delta - V)``). Vega and rho are NaN when ``price``
-        was called with ``greeks="grid"``.
+        was called with ``greeks="grid"``, rho when with ``greeks="vega"``.
     error_estimate : float
         Estimated absolute error of the finer grid's price, ``|V_fine - V_coarse| / 3``; the
         extrapolated price is usually well inside it.
@@ -541,7 +543,8 @@ def _exercised_at_once(
     stats = SolveStats(0, 0, 0, 0, 0, method.name, 0, 0, (s, s),
                        warnings=(*warnings, note))
     zero = math.nan if greeks == "grid" else 0.0  # vega and rho, as for any grid-only call
-    return Result(value, -1.0 if put else 1.0, 0.0, 0.0, zero, zero, 0.0,
+    return Result(value, -1.0 if put else 1.0, 0.0, 0.0, zero,
+                  0.0 if greeks == "full" else math.nan, 0.0,
                   ExerciseBoundary(empty, empty), stats, option, market, t, "exact")
 
 
@@ -648,13 +651,17 @@ def price(
         projected SOR on Crank-Nicolson steps.
     grid : GridSpec or (space_points, time_levels), optional
         Expert override of the finer grid; ``accuracy`` is then ignored.
-    greeks : {"full", "grid"}
+    greeks : {"full", "grid", "vega"}
         ``"full"`` (default) also computes vega and rho: for American options with flat
         inputs, tangents marched with the solution (1.6x to 3.7x the cost of the price alone);
-        with cash dividends or curves, four re-solves of the grid pair (about 5x);
+        with cash dividends of the spot model (flat data), vega by a tangent carried through
+        the dividend jumps and rho from two re-solves (compiled); with curves, the escrowed
+        model or PSOR, four re-solves of the grid pair (about 5x);
         ``"grid"`` returns only what the grid holds (price, delta, gamma, theta) and sets
         vega and rho to NaN: the choice for loops that need prices only (implied vols,
-        batch re-pricing).
+        batch re-pricing). ``"vega"`` computes vega as ``"full"`` does and leaves rho NaN
+        (one tangent, or two re-solves, fewer): the choice for quote checks and implied-vol
+        starts.
 
     Returns
     -------
@@ -752,7 +759,7 @@ def price(
     time_f = time_c.refined()
     # American vega and rho: exact derivatives of the discrete solution ride along the march
     # where the tangent-linear sweep applies (flat data, no cash dividends, direct sweep)
-    tangents = (greeks == "full" and american and not swapped
+    tangents = (greeks != "grid" and american and not swapped
                 and tangents_available(problem, space_c, solver))
     if tangents:
         coarse, tan_c = solve_with_tangents(problem, space_c, time_c, solver.fitted)
@@ -780,16 +787,19 @@ def price(
         pair = ((space_c, time_c), (space_f, time_f))
         dv, dr = VOL_BUMP * problem.vol, RATE_BUMP
         bumped = []
-        for changes in ({"vol": dv}, {"vol": -dv}, {"rate": dr}, {"rate": -dr}):
+        rate_too = greeks == "full"
+        for changes in ({"vol": dv}, {"vol": -dv}, {"rate": dr}, {"rate": -dr})[:4 if rate_too else 2]:
             p = problem_from_market(option, bumped_market(market, **changes), t)
             lo, hi = (solve_on(p, sg, tg, solver) for sg, tg in pair)
             psor += [lo.report, hi.report]
             bumped.append(_extrapolate(_read(lo, p, k).value, _read(hi, p, k).value))
         vega = central_difference(bumped[0], bumped[1], dv)
-        rho = central_difference(bumped[2], bumped[3], dr)
-    if not american and flat and greeks == "full":
+        rho = central_difference(bumped[2], bumped[3], dr) if rate_too else math.nan
+    if not american and flat and greeks != "grid":
         # European with flat inputs: exact identities of the model, no re-solve needed
         vega, rho = european_vega_rho(market.spot, value, delta, gamma, problem.vol, t)
+    if greeks == "vega":
+        rho = math.nan  # not asked for
     theta = theta_at_valuation(problem, market.spot, k, value, delta, gamma, rf.exercised)
     err = abs(rf.value - rc.value) / 3.0
     warnings += _health_warnings(err, k, acc_name, (value, delta, gamma, theta))
@@ -918,14 +928,15 @@ def _price_pair(
     levels = _coarse_levels(preset)
     unit_c = unit_time_grid(levels)
     unit_f = unit_time_grid(2 * levels)
-    tangents = greeks == "full" and american
+    tangents = greeks != "grid" and american
     out = np.empty(_kernels.PAIR_OUT)
     m_f = unit_f[0].shape[0]
     bnd = np.empty((3, m_f))
     _kernels.price_pair(
         is_put, american, t, rate, q, vol, x_spot, k, x_min, h, n, k_idx,
         coefficients(h, rate, q, vol), coefficients(0.5 * h, rate, q, vol), *unit_c, *unit_f,
-        2 if tangents else 0, out, bnd[0], bnd[1], bnd[2], solver.fitted,
+        (2 if greeks == "full" else 1) if tangents else 0, out, bnd[0], bnd[1], bnd[2],
+        solver.fitted,
     )
     o = out.tolist()
     rc = GridReadout(o[0], o[1], o[2], o[3] != 0.0)
@@ -939,6 +950,8 @@ def _price_pair(
         vega = rho = 0.0
     else:
         vega, rho = _extrapolate(o[8], o[10]), _extrapolate(o[9], o[11])
+    if greeks == "vega":
+        rho = math.nan  # not asked for
     theta = theta_from_pde(market.spot, value, delta, gamma, rate, q, vol, rf.exercised)
     warnings = ([] if n < MAX_COARSE_NODES else [_CAP_WARNING]) + _health_warnings(
         abs(rf.value - rc.value) / 3.0, k, name, (value, delta, gamma, theta))
@@ -1061,15 +1074,16 @@ def _price_pair_dividends(
     if greeks == "grid":
         vega = rho = math.nan
     elif rf.exercised:
-        vega = rho = 0.0
+        vega, rho = 0.0, (0.0 if greeks == "full" else math.nan)
     else:
-        vega = _extrapolate(o[8], o[10])
-        scratch = np.empty((3, b_tau.shape[0]))
-        bumped = []
-        for dr in (RATE_BUMP, -RATE_BUMP):
-            ob = pair(rate + dr, 0, (scratch[0], scratch[1], scratch[2]))
-            bumped.append(_extrapolate(ob[0], ob[4]))
-        rho = central_difference(bumped[0], bumped[1], RATE_BUMP)
+        vega, rho = _extrapolate(o[8], o[10]), math.nan
+        if greeks == "full":
+            scratch = np.empty((3, b_tau.shape[0]))
+            bumped = []
+            for dr in (RATE_BUMP, -RATE_BUMP):
+                ob = pair(rate + dr, 0, (scratch[0], scratch[1], scratch[2]))
+                bumped.append(_extrapolate(ob[0], ob[4]))
+            rho = central_difference(bumped[0], bumped[1], RATE_BUMP)
     theta = theta_from_pde(market.spot, value, delta, gamma, rate, q, vol, rf.exercised)
     warnings = list(problem.warnings) + ([] if n < MAX_COARSE_NODES else [_CAP_WARNING])
     warnings += _health_warnings(abs(rf.value - rc.value) / 3.0, k, name,
