@@ -1510,6 +1510,58 @@ def _value_after_weights(v, x, x0, h, d, df_r, df_q, is_put, american):
     return val, j0, c0, c1, c2, c3
 
 
+@njit(cache=True, inline="always")
+def _value_after_slope(v, x, x0, h, d, df_r, df_q, is_put, american):
+    """``d/dx`` of :func:`_value_after` at ``x`` (the same branches: the far field below the
+    first node, zero where the limiter clamps, else the cubic's slope)."""
+    n = v.shape[0]
+    ex = math.exp(x)
+    s = ex - d
+    if s <= math.exp(x0):
+        if s <= 0.0:
+            return 0.0
+        fwd = df_r - s * df_q if is_put else s * df_q - df_r
+        far = fwd if fwd > 0.0 else 0.0
+        e = 1.0 - s if is_put else s - 1.0
+        sgn = -1.0 if is_put else 1.0
+        if american and e > far:
+            return sgn * ex
+        return sgn * df_q * ex if fwd > 0.0 else 0.0
+    y = (math.log(s) - x0) / h
+    i = int(math.floor(y))
+    if i > n - 2:
+        i = n - 2
+    j0 = i - 1
+    if j0 < 0:
+        j0 = 0
+    if j0 > n - 4:
+        j0 = n - 4
+    t = y - j0
+    a0 = t - 1.0
+    a1 = t - 2.0
+    a2 = t - 3.0
+    val = (-a0 * a1 * a2 / 6.0 * v[j0] + t * a1 * a2 / 2.0 * v[j0 + 1]
+           - t * a0 * a2 / 2.0 * v[j0 + 2] + t * a0 * a1 / 6.0 * v[j0 + 3])
+    lo = v[i] if v[i] < v[i + 1] else v[i + 1]
+    hi = v[i] if v[i] > v[i + 1] else v[i + 1]
+    if val < lo or val > hi:
+        return 0.0
+    dv = (-(a1 * a2 + a0 * a2 + a0 * a1) / 6.0 * v[j0]
+          + (a1 * a2 + t * a2 + t * a1) / 2.0 * v[j0 + 1]
+          - (a0 * a2 + t * a2 + t * a0) / 2.0 * v[j0 + 2]
+          + (a0 * a1 + t * a1 + t * a0) / 6.0 * v[j0 + 3])
+    return dv * ex / (s * h)
+
+
+@njit(cache=True, inline="always")
+def _exercise_slope(x, is_put):
+    """``d/dx`` of the exercise value ``max(+-(1 - e^x), 0)`` (spot model)."""
+    ex = math.exp(x)
+    if is_put:
+        return -ex if 1.0 - ex > 0.0 else 0.0
+    return ex if ex - 1.0 > 0.0 else 0.0
+
+
 @njit(cache=True)
 def dividend_jump_tangents(v, tan, payoff, x0, h, d, df_r, df_q, is_put, american, out, tan_out):
     """:func:`dividend_jump` of the spot model (``pv = 0``) with the derivatives of its values.
@@ -1518,10 +1570,13 @@ def dividend_jump_tangents(v, tan, payoff, x0, h, d, df_r, df_q, is_put, america
     numbers) and ``tan_out[p]`` (shape ``tan``, (n_par, n)) the derivative of ``out`` for
     the change ``tan[p]`` of ``v``, for a parameter that moves neither the dropped spot nor
     the far field (the volatility): the same interpolation applied to the tangent, zero where
-    the exercise value binds or below the grid. In a cell averaged across a kink, the kink
-    is held where it is: the two-point Gauss sums change with its position by the jump of
-    the integrand there, which is zero (the held and exercise values meet at it) up to the
-    quadrature's error, and the bisection's kink moves in steps of ``h / 2^40``.
+    the exercise value binds or below the grid. In a cell averaged across the kink where
+    the exercise value overtakes the held value ``H``, the kink ``x_k`` moves too: by
+    ``-dH(x_k) / (H'(x_k) - E'(x_k))`` (``E`` the exercise value, primes in ``x``), and the
+    two Gauss sums with it, by half the integrand at each side's points plus its slope
+    times their motion (``1/2 -+ g`` of the kink's, ``g = 1 / (2 sqrt 3)``). That is the
+    derivative of the rule with the exact kink; the bisection's own kink moves in steps of
+    ``h / 2^40``. The kink where the dropped spot reaches zero does not move.
     """
     n = v.shape[0]
     n_par = tan.shape[0]
@@ -1564,16 +1619,27 @@ def dividend_jump_tangents(v, tan, payoff, x0, h, d, df_r, df_q, is_put, america
                     tan_out[p, j] = 0.0
             continue
         total = 0.0
+        dq_dk = 0.0  # change of the two Gauss sums per unit move of the kink
         for p in range(n_par):
             tan_out[p, j] = 0.0
+        side = -1.0
         for lo, hi in ((xl, xk), (xk, xr)):
             c = 0.5 * (lo + hi)
             ln = hi - lo
+            sg = -1.0
             for z in (c - g * ln, c + g * ln):
                 wz, i0, b0, b1, b2, b3 = _value_after_weights(v, z, x0, h, d, df_r, df_q, is_put,
                                                              american)
                 ez = _exercise_value(z, 0.0, is_put) if american else 0.0
-                if american and not wz > ez:
+                held_z = not (american and not wz > ez)
+                fz = wz if held_z else ez
+                if american and n_par > 0:
+                    slope = (_value_after_slope(v, z, x0, h, d, df_r, df_q, is_put, True)
+                             if held_z else _exercise_slope(z, is_put))
+                    # d ln / d x_k = -side, d z / d x_k = 1/2 + side sg g (left: 1/2 - sg g...)
+                    dq_dk += -side * 0.5 * fz + 0.5 * ln * slope * (0.5 - side * sg * g)
+                sg = 1.0
+                if not held_z:
                     total += 0.5 * ln * ez  # as _held_or_exercised: the larger value
                     continue
                 total += 0.5 * ln * wz
@@ -1581,8 +1647,21 @@ def dividend_jump_tangents(v, tan, payoff, x0, h, d, df_r, df_q, is_put, america
                     tp = tan[p]
                     tan_out[p, j] += 0.5 * ln * (
                         b0 * tp[i0] + b1 * tp[i0 + 1] + b2 * tp[i0 + 2] + b3 * tp[i0 + 3])
+            side = 1.0
         out[j] = total / h
+        moves = american and n_par > 0 and xk != x_zero
+        k0 = 0
+        e0 = e1 = e2 = e3 = dg = 0.0
+        if moves:
+            _, k0, e0, e1, e2, e3 = _value_after_weights(v, xk, x0, h, d, df_r, df_q, is_put, True)
+            dg = (_value_after_slope(v, xk, x0, h, d, df_r, df_q, is_put, True)
+                  - _exercise_slope(xk, is_put))
+            moves = dg != 0.0
         for p in range(n_par):
+            if moves:
+                tp = tan[p]
+                dk = -(e0 * tp[k0] + e1 * tp[k0 + 1] + e2 * tp[k0 + 2] + e3 * tp[k0 + 3]) / dg
+                tan_out[p, j] += dq_dk * dk
             tan_out[p, j] /= h
 
 
