@@ -28,6 +28,7 @@ Magazine (the spot model and the interpolation across the ex-date).
 from __future__ import annotations
 
 import datetime as _dt
+import functools
 import math
 from dataclasses import dataclass
 
@@ -100,6 +101,30 @@ def dividend_schedule(
     """
     if not dividends:
         return _NO_DIVIDENDS
+    try:
+        return _cached_schedule(dividends, expiry, valuation_date, day_count)
+    except TypeError:  # entries that cannot be a cache key (a list): built afresh
+        return _build_schedule(dividends, expiry, valuation_date, day_count)
+
+
+@functools.lru_cache(maxsize=1024)
+def _cached_schedule(
+    dividends: tuple[tuple[_dt.date | float, float], ...], expiry: float,
+    valuation_date: _dt.date | None, day_count: str,
+) -> DividendSchedule:
+    """:func:`_build_schedule`, kept per process (a book prices each row several times, and
+    its rows share dividend lists); the arrays are read-only, as they are shared."""
+    out = _build_schedule(dividends, expiry, valuation_date, day_count)
+    out.times.flags.writeable = False
+    out.amounts.flags.writeable = False
+    return out
+
+
+def _build_schedule(
+    dividends: tuple[tuple[_dt.date | float, float], ...], expiry: float,
+    valuation_date: _dt.date | None, day_count: str,
+) -> DividendSchedule:
+    """The work of :func:`dividend_schedule` (see it)."""
     times: list[float] = []
     amounts: list[float] = []
     warnings: list[str] = []

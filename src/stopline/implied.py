@@ -39,6 +39,7 @@ first step are the same.
 
 from __future__ import annotations
 
+import copy
 import dataclasses
 import math
 from collections.abc import Callable
@@ -304,7 +305,10 @@ def implied_vol_detail(
     def model(vol: float) -> float:
         nonlocal calls
         calls += 1
-        mkt = dataclasses.replace(market, vol=vol)
+        # the market at this vol, without re-running Market's checks (the rest was checked
+        # when it was built, and every vol tried lies in VOL_BRACKET, inside VOL_RANGE)
+        mkt = copy.copy(market)
+        object.__setattr__(mkt, "vol", float(vol))
         res = price(option, mkt, accuracy=acc, greeks="grid")
         error_estimates[vol] = res.error_estimate
         return res.price
