@@ -595,13 +595,15 @@ def _tangent_step(
             r = trhs[j] - c * w[j + 1] * r
             trhs[j] = r * w[j]
         t[0] = tl
+        y = tl  # the last value, carried in a register
         for j in range(1, n - 1):
             if american and v[j] <= payoff[j]:
-                t[j] = 0.0
+                y = 0.0
             elif j == jg:
-                t[j] = (trhs[j] + g_add) / g_div
+                y = (trhs[j] + g_add) / g_div
             else:
-                t[j] = trhs[j] - a * w[j] * t[j - 1]
+                y = trhs[j] - a * w[j] * y
+            t[j] = y
         t[n - 1] = th
     else:
         trhs[1] -= a * tl
@@ -611,13 +613,15 @@ def _tangent_step(
             r = trhs[j] - a * w[j - 1] * r
             trhs[j] = r * w[j]
         t[n - 1] = th
+        y = th
         for j in range(n - 2, 0, -1):
             if american and v[j] <= payoff[j]:
-                t[j] = 0.0
+                y = 0.0
             elif j == jg:
-                t[j] = (trhs[j] + g_add) / g_div
+                y = (trhs[j] + g_add) / g_div
             else:
-                t[j] = trhs[j] - c * w[j] * t[j + 1]
+                y = trhs[j] - c * w[j] * y
+            t[j] = y
         t[0] = tl
 
 
