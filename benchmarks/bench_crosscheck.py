@@ -1,7 +1,7 @@
 """Throughput of the cross-check: American quotes checked per second, by number of workers.
 
-Each row costs one price with its vega (tangents marched with the solution where the inputs
-are flat; two bumped prices with cash dividends), the implied vol of the quote started at
+Each row costs one price with its vega (a tangent marched with the solution, through the
+dividend jumps with cash dividends; no rho), the implied vol of the quote started at
 that price with that vega (one or two prices for a quote near the model), and, for a
 mismatch, a few alternative prices. The book is the clean American rows of the demo book,
 repeated to ``--rows`` rows. Prints, for each worker count, rows per second of wall time
@@ -56,18 +56,18 @@ def cpu_seconds() -> float:
 def count_work(book: Path, settings: CheckSettings) -> dict[str, float]:
     """price() calls per row, by what they compute, counted by wrapping price() (not timed).
 
-    Each call solves one Richardson pair of grids; ``"full"`` ones also march the vega and
-    rho tangents with it (the cross-check asks for them only where no re-solve is needed).
+    Each call solves one Richardson pair of grids; ``"vega"`` (and ``"full"``) ones also
+    march the vol tangent with it (``"full"`` also rho's).
     """
     import stopline.crosscheck as cc
     import stopline.pricing as pricing
 
-    counts = {"price": 0, "full": 0, "dividends": 0}
+    counts = {"price": 0, "vega": 0, "dividends": 0}
     real = pricing.price
 
     def price(option, market, **kw):
         counts["price"] += 1
-        counts["full"] += kw.get("greeks", "full") == "full"
+        counts["vega"] += kw.get("greeks", "full") != "grid"
         counts["dividends"] += bool(market.dividends)
         return real(option, market, **kw)
 
@@ -110,8 +110,8 @@ def main() -> None:
                   f"= {rate:.0f} rows/s, x{rate / base:.2f}; {args.rows / cpu:.0f} rows per "
                   f"CPU-second ({run.counts()})")
         work = count_work(book, settings)
-        print(f"per row: {work['price']:.2f} price() calls ({work['full']:.2f} asking for vega and "
-              f"rho, {work['dividends']:.2f} with cash dividends)")
+        print(f"per row: {work['price']:.2f} price() calls ({work['vega']:.2f} asking for vega, "
+              f"{work['dividends']:.2f} with cash dividends)")
         if args.cold:
             n = max(args.workers)
             code = ("import sys, time; t0 = time.perf_counter(); "
