@@ -214,8 +214,8 @@ def _lagrange_twin(v: np.ndarray, x: float, x0: float, h: float, d: float) -> tu
 def test_dividend_jump_tangents_values_equal_dividend_jump(is_put, american, d) -> None:
     v, tan, payoff, x0, h = _setup(is_put)
     out, out_t = np.empty_like(v), np.empty_like(tan)
-    _kernels.dividend_jump_tangents(v, tan, payoff, x0, h, d, 0.97, 0.99, is_put, american, out,
-                                    out_t)
+    _kernels.dividend_jump_tangents(v, tan, payoff, x0, h, d, 0.0, 0.97, 0.99, is_put, american,
+                                    out, out_t)
     ref = np.empty_like(v)
     _kernels.dividend_jump(v, payoff, x0, h, d, 0.0, 0.97, 0.99, is_put, american, ref)
     assert out.tolist() == ref.tolist()  # the same operations: bitwise equal

@@ -1558,22 +1558,25 @@ def _value_after_slope(v, x, x0, h, d, df_r, df_q, is_put, american):
 
 
 @njit(cache=True, inline="always")
-def _exercise_slope(x, is_put):
-    """``d/dx`` of the exercise value ``max(+-(1 - e^x), 0)`` (spot model)."""
+def _exercise_slope(x, pv, is_put):
+    """``d/dx`` of the exercise value ``max(+-(1 - e^x - pv), 0)`` (:func:`_exercise_value`)."""
     ex = math.exp(x)
+    s = ex + pv
     if is_put:
-        return -ex if 1.0 - ex > 0.0 else 0.0
-    return ex if ex - 1.0 > 0.0 else 0.0
+        return -ex if 1.0 - s > 0.0 else 0.0
+    return ex if s - 1.0 > 0.0 else 0.0
 
 
 @njit(cache=True)
-def dividend_jump_tangents(v, tan, payoff, x0, h, d, df_r, df_q, is_put, american, out, tan_out):
-    """:func:`dividend_jump` of the spot model (``pv = 0``) with the derivatives of its values.
+def dividend_jump_tangents(v, tan, payoff, x0, h, d, pv, df_r, df_q, is_put, american, out,
+                           tan_out):
+    """:func:`dividend_jump` with the derivatives of its values (same arguments, plus ``tan``
+    and ``tan_out``).
 
     ``out`` gets the values :func:`dividend_jump` gives (the same operations, so the same
     numbers) and ``tan_out[p]`` (shape ``tan``, (n_par, n)) the derivative of ``out`` for
-    the change ``tan[p]`` of ``v``, for a parameter that moves neither the dropped spot nor
-    the far field (the volatility): the same interpolation applied to the tangent, zero where
+    the change ``tan[p]`` of ``v``, for a parameter that moves neither the dropped spot, the
+    exercise value's shift nor the far field (the volatility): the same interpolation applied to the tangent, zero where
     the exercise value binds or below the grid. In a cell averaged across the kink where
     the exercise value overtakes the held value ``H``, the kink ``x_k`` moves too: by
     ``-dH(x_k) / (H'(x_k) - E'(x_k))`` (``E`` the exercise value, primes in ``x``), and the
@@ -1595,15 +1598,15 @@ def dividend_jump_tangents(v, tan, payoff, x0, h, d, df_r, df_q, is_put, america
         e = payoff[j] if american else 0.0
         xk = math.nan
         if american:
-            gl = _value_after(v, xl, x0, h, d, df_r, df_q, is_put, True) - _exercise_value(xl, 0.0, is_put)
-            gr = _value_after(v, xr, x0, h, d, df_r, df_q, is_put, True) - _exercise_value(xr, 0.0, is_put)
+            gl = _value_after(v, xl, x0, h, d, df_r, df_q, is_put, True) - _exercise_value(xl, pv, is_put)
+            gr = _value_after(v, xr, x0, h, d, df_r, df_q, is_put, True) - _exercise_value(xr, pv, is_put)
             if gl * gr < 0.0:
                 a = xl
                 b = xr
                 for _ in range(40):
                     m = 0.5 * (a + b)
                     gm = _value_after(v, m, x0, h, d, df_r, df_q, is_put, True) - _exercise_value(
-                        m, 0.0, is_put
+                        m, pv, is_put
                     )
                     if (gm < 0.0) == (gl < 0.0):
                         a = m
@@ -1634,12 +1637,12 @@ def dividend_jump_tangents(v, tan, payoff, x0, h, d, df_r, df_q, is_put, america
             for z in (c - g * ln, c + g * ln):
                 wz, i0, b0, b1, b2, b3 = _value_after_weights(v, z, x0, h, d, df_r, df_q, is_put,
                                                              american)
-                ez = _exercise_value(z, 0.0, is_put) if american else 0.0
+                ez = _exercise_value(z, pv, is_put) if american else 0.0
                 held_z = not (american and not wz > ez)
                 fz = wz if held_z else ez
                 if american and n_par > 0:
                     slope = (_value_after_slope(v, z, x0, h, d, df_r, df_q, is_put, True)
-                             if held_z else _exercise_slope(z, is_put))
+                             if held_z else _exercise_slope(z, pv, is_put))
                     # d ln / d x_k = -side, d z / d x_k = 1/2 + side sg g (left: 1/2 - sg g...)
                     dq_dk += -side * 0.5 * fz + 0.5 * ln * slope * (0.5 - side * sg * g)
                 sg = 1.0
@@ -1659,7 +1662,7 @@ def dividend_jump_tangents(v, tan, payoff, x0, h, d, df_r, df_q, is_put, america
         if moves:
             _, k0, e0, e1, e2, e3 = _value_after_weights(v, xk, x0, h, d, df_r, df_q, is_put, True)
             dg = (_value_after_slope(v, xk, x0, h, d, df_r, df_q, is_put, True)
-                  - _exercise_slope(xk, is_put))
+                  - _exercise_slope(xk, pv, is_put))
             moves = dg != 0.0
         for p in range(n_par):
             if moves:
@@ -1804,8 +1807,8 @@ def solve_spot_dividends(is_put, american, expiry, rate, div_yield, vol, x_min, 
             b += 1
         if e < n_ev and last == ev_idx[e]:
             d = ev_amt[e]
-            dividend_jump_tangents(v, tan, payoff, x_min, h, d, plan[3, last], plan[4, last],
-                                   is_put, american, work, tan_work)
+            dividend_jump_tangents(v, tan, payoff, x_min, h, d, 0.0, plan[3, last],
+                                   plan[4, last], is_put, american, work, tan_work)
             if american:
                 value_after_drop(v, x_min, h, d, plan[3, last], plan[4, last], is_put, True, held)
                 for j in range(n):
