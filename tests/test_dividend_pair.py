@@ -1,5 +1,5 @@
-"""Cash dividends of the spot model in one compiled call per Richardson pair
-(:func:`stopline._kernels.price_pair_spot_dividends`): equal to the general path, its vega
+"""Cash dividends in one compiled call per Richardson pair
+(:func:`stopline._kernels.price_pair_cash_dividends`): equal to the general path, its vega
 tangent equal to central differences of its prices, its kernels equal to plain-NumPy twins
 or to the general path's NumPy code."""
 
@@ -10,7 +10,7 @@ import math
 import numpy as np
 import pytest
 
-from stopline import Market, Option, _kernels, pricing
+from stopline import Market, Option, PiecewiseConstant, _kernels, pricing
 from stopline.exercise import DirectSweep, FittedSweep
 from stopline.operator import coefficients, plan_steps
 from stopline.pricing import price
@@ -26,9 +26,9 @@ from stopline.solve import (
 
 from .test_kernels_dividends import _after_twin
 
-#: Contracts with cash dividends (spot model): puts and calls, American and European, one to
-#: seven dividends, large ones (a put's dropped spot below the grid), a yield on top, an
-#: ex-date a day after valuation, and dividends after expiry mixed in.
+#: Contracts with cash dividends: puts and calls, American and European, one to seven
+#: dividends, large ones (a put's dropped spot below the grid), a yield on top, an ex-date a
+#: day after valuation, dividends after expiry mixed in; the spot model, then the escrowed.
 CASES = [
     (Option("put", 100.0, 1.0), Market(100.0, 0.05, 0.3, dividends=[(0.3, 1.0), (0.8, 1.0)])),
     (Option("call", 100.0, 1.0), Market(105.0, 0.05, 0.3, dividends=[(0.3, 2.0), (0.8, 2.0)])),
@@ -40,6 +40,15 @@ CASES = [
     (Option("put", 100.0, 2.0), Market(90.0, 0.05, 0.25, dividends=[(0.25 * i, 1.5) for i in range(1, 8)])),
     (Option("put", 100.0, 0.5, "european"), Market(60.0, 0.02, 0.6, dividends=[(0.2, 25.0)])),
     (Option("call", 100.0, 0.25), Market(130.0, 0.04, 0.35, dividends=[(1.0 / 365.0, 3.0)])),
+    (Option("put", 100.0, 1.0), Market(100.0, 0.05, 0.3, dividends=[(0.3, 1.0), (0.8, 1.0)],
+                                       dividend_model="escrowed")),
+    (Option("call", 80.0, 0.5), Market(80.0, 0.06, 0.30, dividends=[(0.25, 4.0)],
+                                       dividend_model="escrowed")),
+    (Option("call", 100.0, 1.0), Market(110.0, 0.03, 0.25, div_yield=0.01,
+                                        dividends=[(0.2, 1.5), (0.45, 1.5), (0.7, 1.5), (0.95, 1.5)],
+                                        dividend_model="escrowed")),
+    (Option("put", 50.0, 5 / 12, "european"),
+     Market(52.0, 0.10, 0.40, dividends=[(3.5 / 12, 2.06)], dividend_model="escrowed")),
 ]
 
 
@@ -107,9 +116,10 @@ def test_dividends_after_expiry_take_the_flat_pair(monkeypatch: pytest.MonkeyPat
 def test_compiled_pair_declines_what_it_does_not_solve() -> None:
     opt = Option("put", 100.0, 1.0)
     declined = [
-        Market(100.0, 0.05, 0.3, dividends=[(0.5, 2.0)], dividend_model="escrowed"),
         Market(100.0, 0.05, 0.3, dividends=[(1.0, 2.0)]),  # ex-date on the expiry date
+        Market(100.0, 0.05, 0.3, dividends=[(1.0, 2.0)], dividend_model="escrowed"),
         Market(100.0, -0.01, 0.3, div_yield=-0.02, dividends=[(0.5, 2.0)]),  # two boundaries
+        Market(100.0, PiecewiseConstant((0.5, 2.0), (0.03, 0.05)), 0.3, dividends=[(0.5, 2.0)]),
     ]
     for mkt in declined:
         assert pricing._price_pair_dividends(opt, mkt, 1.0, "fast", "grid", DirectSweep()) is None
@@ -123,15 +133,15 @@ def _pair_raw(opt: Option, mkt: Market, vol: float, n_par: int) -> np.ndarray:
     preset = pricing.PRESETS["standard"]
     x_min, h, n, k_idx, _ = pricing._preset_layout(p.x_spot, t, p.rate, p.div_yield, p.vol,
                                                    opt.is_american, preset)
-    tc, tf, ic, i_f, b_tau = pricing._event_time_grids(t, p.dividend_tau,
-                                                       pricing._coarse_levels(preset))
-    ev_c, amt = pricing._events(ic, p.dividend_amount)
-    ev_f, _ = pricing._events(i_f, p.dividend_amount)
+    events = p.dividend_tau if p.has_events else ()
+    tc, tf, ic, i_f, b_tau = pricing._event_time_grids(t, events, pricing._coarse_levels(preset))
+    ev_c, amt = pricing._events(ic, p.dividend_amount if events else ())
+    ev_f, _ = pricing._events(i_f, p.dividend_amount if events else ())
     out = np.empty(_kernels.PAIR_OUT)
     bnd = np.empty((3, b_tau.shape[0]))
-    _kernels.price_pair_spot_dividends(
-        opt.is_put, opt.is_american, t, p.rate, p.div_yield, vol, p.x_spot, opt.strike, x_min, h,
-        n, k_idx, coefficients(h, p.rate, p.div_yield, vol),
+    _kernels.price_pair_cash_dividends(
+        opt.is_put, opt.is_american, p.escrowed, t, p.rate, p.div_yield, vol, p.x_spot,
+        p.escrow_pv, opt.strike, x_min, h, n, k_idx, coefficients(h, p.rate, p.div_yield, vol),
         coefficients(0.5 * h, p.rate, p.div_yield, vol), tc.tau, tc.dt, tc.theta, ev_c, tf.tau,
         tf.dt, tf.theta, ev_f, amt, np.asarray(p.dividend_tau), np.asarray(p.dividend_amount),
         n_par, out, bnd[0], bnd[1], bnd[2],
@@ -257,10 +267,12 @@ def test_dividends_ahead_and_crossing_equal_the_general_path(is_put: bool) -> No
     tg = time_grid_for(p, 40)
     plan = plan_steps(tg, 0.02, p.rate, p.div_yield, p.vol)
     out = np.empty_like(tg.tau)
-    _kernels.dividends_ahead_spot(tg.tau, 1.5, p.rate, p.div_yield, np.asarray(p.dividend_tau),
-                                  np.asarray(p.dividend_amount), out)
-    np.testing.assert_allclose(out, _dividends_ahead(p, plan, to_expiry=True), rtol=1e-15, atol=0)
-    assert out[0] == 0.0 and out[-1] > 0.0  # none still to come at expiry, all at valuation
+    for to_expiry in (True, False):
+        _kernels.dividends_ahead(tg.tau, 1.5, p.rate, p.div_yield, np.asarray(p.dividend_tau),
+                                 np.asarray(p.dividend_amount), to_expiry, out)
+        np.testing.assert_allclose(out, _dividends_ahead(p, plan, to_expiry=to_expiry),
+                                   rtol=1e-15, atol=0)
+        assert out[0] == 0.0 and out[-1] > 0.0  # none still to come at expiry, all at valuation
     # the crossing of held and exercise value, on a gap that changes sign once
     v, _, payoff, x0, h = _setup(is_put)
     from stopline.grid import SpaceGrid
@@ -273,12 +285,13 @@ def test_dividends_ahead_and_crossing_equal_the_general_path(is_put: bool) -> No
     assert math.isnan(_kernels.crossing(np.ones_like(gap), payoff, x0, h, is_put))
 
 
+@pytest.mark.parametrize("model", ["spot", "escrowed"])
 @pytest.mark.parametrize("american", [True, False])
 @pytest.mark.parametrize("is_put", [True, False])
-def test_solve_spot_dividends_equals_solve(american: bool, is_put: bool) -> None:
+def test_solve_cash_dividends_equals_solve(american: bool, is_put: bool, model: str) -> None:
     # one grid: the compiled march against solve() (values, exercise value, boundary)
     opt = Option("put" if is_put else "call", 100.0, 1.0, "american" if american else "european")
-    mkt = Market(100.0, 0.05, 0.3, dividends=[(0.3, 2.0), (0.8, 2.0)])
+    mkt = Market(100.0, 0.05, 0.3, dividends=[(0.3, 2.0), (0.8, 2.0)], dividend_model=model)
     p = problem_from_market(opt, mkt, 1.0)
     preset = pricing.PRESETS["fast"]
     x_min, h, n, k_idx, _ = pricing._preset_layout(p.x_spot, 1.0, p.rate, 0.0, p.vol, american,
@@ -288,17 +301,19 @@ def test_solve_spot_dividends_equals_solve(american: bool, is_put: bool) -> None
     space = SpaceGrid(x_min, h, n, k_idx)
     tg = time_grid_for(p, 16)
     ref = solve(p, space, tg, DirectSweep())
-    _, _, idx, _, _ = pricing._event_time_grids(1.0, p.dividend_tau, 16)
-    ev, amt = pricing._events(idx, p.dividend_amount)
+    events = p.dividend_tau if p.has_events else ()
+    _, _, idx, _, _ = pricing._event_time_grids(1.0, events, 16)
+    ev, amt = pricing._events(idx, p.dividend_amount if events else ())
     v, payoff, bnd = np.empty(n), np.empty(n), np.empty(tg.tau.shape[0] + ev.shape[0])
-    _kernels.solve_spot_dividends(
-        is_put, american, 1.0, p.rate, p.div_yield, p.vol, x_min, h, n, k_idx,
+    _kernels.solve_cash_dividends(
+        is_put, american, p.escrowed, 1.0, p.rate, p.div_yield, p.vol, x_min, h, n, k_idx,
         coefficients(h, p.rate, p.div_yield, p.vol), tg.tau, tg.dt, tg.theta, ev, amt,
-        np.asarray(p.dividend_tau), np.asarray(p.dividend_amount), 0, v, payoff,
+        np.asarray(p.dividend_tau), np.asarray(p.dividend_amount), p.escrow_pv, 0, v, payoff,
         np.empty((0, n)), bnd,
     )
     np.testing.assert_allclose(v, ref.values, rtol=1e-13, atol=1e-16)
-    np.testing.assert_array_equal(payoff, ref.payoff)
+    np.testing.assert_allclose(payoff, ref.payoff, rtol=1e-14, atol=1e-16)
     np.testing.assert_allclose(bnd, ref.report.boundary_x, rtol=1e-13, equal_nan=True)
     assert np.array_equal(np.isnan(bnd), np.isnan(ref.report.boundary_x))
-    np.testing.assert_array_equal(payoff, payoff_on(space, is_put, ex=node_exp(space)))
+    if model == "spot" or not american:
+        np.testing.assert_array_equal(payoff, payoff_on(space, is_put, ex=node_exp(space)))

@@ -70,10 +70,10 @@ __all__ = [
     "price_pair",
     "PAIR_OUT",
     "dividend_jump_tangents",
-    "dividends_ahead_spot",
+    "dividends_ahead",
     "crossing",
-    "solve_spot_dividends",
-    "price_pair_spot_dividends",
+    "solve_cash_dividends",
+    "price_pair_cash_dividends",
 ]
 
 
@@ -1673,11 +1673,12 @@ def dividend_jump_tangents(v, tan, payoff, x0, h, d, pv, df_r, df_q, is_put, ame
 
 
 @njit(cache=True, inline="always")
-def dividends_ahead_spot(tau, expiry, rate, div_yield, div_tau, div_amt, out):
+def dividends_ahead(tau, expiry, rate, div_yield, div_tau, div_amt, to_expiry, out):
     """Per step: the dividends / strike still to come after its end, discounted to it at the
-    rate and from the ex-date to expiry at the yield (flat data), into ``out``: the amount by
-    which they lower the discounted forward of the spot model. The rule of
-    :func:`stopline.solve._dividends_ahead` with ``to_expiry=True``."""
+    rate (flat data), and with ``to_expiry`` also from the ex-date to expiry at the yield,
+    into ``out``. The rule of :func:`stopline.solve._dividends_ahead`: with ``to_expiry``,
+    the amount by which they lower the discounted forward of the spot model; without, their
+    present value at the step's end (escrowed model)."""
     for k in range(tau.shape[0]):
         out[k] = 0.0
     for i in range(div_tau.shape[0]):
@@ -1688,7 +1689,9 @@ def dividends_ahead_spot(tau, expiry, rate, div_yield, div_tau, div_amt, out):
                 t_now = expiry - tau[k]
                 if t_now < 0.0:
                     t_now = 0.0
-                grow = rate * (t_ex - t_now) + div_yield * (expiry - t_ex)
+                grow = rate * (t_ex - t_now)
+                if to_expiry:
+                    grow = grow + div_yield * (expiry - t_ex)
                 out[k] += div_amt[i] * math.exp(-grow)
 
 
@@ -1715,22 +1718,66 @@ def crossing(gap, exercise, x_min, h, is_put):
     return math.nan
 
 
+@njit(cache=True, inline="always")
+def _shifted_exercise(ex, pv, is_put, out):
+    """Exercise value / strike on the nodes when the spot is ``e^x + pv`` (escrowed grid)."""
+    for j in range(ex.shape[0]):
+        s = ex[j] + pv
+        e = 1.0 - s if is_put else s - 1.0
+        out[j] = e if e > 0.0 else 0.0
+
+
+@njit(cache=True, inline="always")
+def _march_piece(v, ex, x_min, h, plan, tau, dt, theta, start, stop, is_put, american, vol,
+                 tan, bnd, b):
+    """March steps ``start .. stop - 1`` of a flat plan (rows of :func:`flat_plan`) with the
+    direct sweep and the vol tangent (``tan``, (n_par, n)), on nodes standing for the spots
+    ``ex``; the critical log-moneyness of each step into ``bnd[b:]``."""
+    n = v.shape[0]
+    n_par = tan.shape[0]
+    ms = stop - start
+    seg = np.empty((7, ms))
+    seg_t = np.empty((3, ms))
+    for k in range(ms):
+        for r in range(7):
+            seg[r, k] = plan[r, start + k]
+        seg_t[0, k] = tau[start + k]
+        seg_t[1, k] = dt[start + k]
+        seg_t[2, k] = theta[start + k]
+    dco = np.empty((2 if n_par else 0, 3, ms if n_par else 0))
+    dfar = np.empty((2 if n_par else 0, 2, ms if n_par else 0))
+    if n_par:
+        tangent_coefficients(h, vol, is_put, american, ex[0], ex[n - 1], seg_t[0], seg[3],
+                             seg[4], dco, dfar)
+    sb = np.empty(ms)
+    march_direct_tangents(
+        v, ex, x_min, h, seg_t[1], seg_t[2], seg[0], seg[1], seg[2], seg[3], seg[4], seg[5],
+        seg[6], is_put, american, sb, tan, dco, dfar, False,
+    )
+    for k in range(ms):
+        bnd[b + k] = sb[k]
+
+
 @njit(cache=True)
-def solve_spot_dividends(is_put, american, expiry, rate, div_yield, vol, x_min, h, n,
+def solve_cash_dividends(is_put, american, escrowed, expiry, rate, div_yield, vol, x_min, h, n,
                          strike_index, h_coef, tau, dt, theta, ev_idx, ev_amt, div_tau, div_amt,
-                         n_par, v, payoff, tan, bnd):
-    """One grid with cash dividends of the spot model, flat data, frame "x", the direct
-    sweep: :func:`stopline.solve.solve` for that case (the same steps, in one call).
+                         escrow_pv, n_par, v, payoff, tan, bnd):
+    """One grid with cash dividends, flat data, frame "x", the direct sweep:
+    :func:`stopline.solve.solve` for that case (the same steps, in one call).
 
     The march goes segment by segment between ex-date levels (:func:`march_direct_tangents`);
     at each ex-date the values jump (:func:`dividend_jump_tangents`) and the critical
-    log-moneyness just before it is placed (:func:`crossing`). The far-field values include
-    the dividends still to come (:func:`dividends_ahead_spot`).
+    log-moneyness just before it is placed (:func:`crossing`). Spot model: the far-field
+    values include the dividends still to come (:func:`dividends_ahead`). Escrowed model
+    (American; a European one has no events and is the flat problem): the nodes stand for
+    ``S* = S - PV_t(D)``, the march goes one step at a time with the exercise and far-field
+    values of the spot ``S* + PV_t(D)``, the jump lowers that shift by the dividend, and the
+    boundary is reported for the spot itself.
 
     Parameters
     ----------
-    is_put, american : bool
-        Contract flags.
+    is_put, american, escrowed : bool
+        Contract flags; the dividend model.
     expiry, rate, div_yield, vol : float
         Years to expiry and flat market data.
     x_min, h, n, strike_index : float, float, int, int
@@ -1742,7 +1789,9 @@ def solve_spot_dividends(is_put, american, expiry, rate, div_yield, vol, x_min, 
     ev_idx, ev_amt : ndarray, shape (n_ev,)
         Levels of the ex-dates, increasing (int64), and the dividend / strike paid there.
     div_tau, div_amt : ndarray, shape (n_div,)
-        Time to expiry of every ex-date and its dividend / strike (the far field's).
+        Time to expiry of every ex-date and its dividend / strike, in the schedule's order.
+    escrow_pv : float
+        Present value of the dividends / strike at valuation (escrowed model; else unused).
     n_par : int
         0, or 1 to march the vol tangent alongside (into ``tan[0]``).
     v, payoff : ndarray, shape (n,)
@@ -1750,23 +1799,24 @@ def solve_spot_dividends(is_put, american, expiry, rate, div_yield, vol, x_min, 
     tan : ndarray, shape (n_par, n)
         Written: d(value / strike)/d vol at valuation.
     bnd : ndarray, shape (m + n_ev,)
-        Written: critical log-moneyness after each step and, after the steps ending at an
-        ex-date, one entry for the state just before it (as
+        Written: critical log-moneyness of the spot after each step and, after the steps
+        ending at an ex-date, one entry for the state just before it (as
         :attr:`stopline.solve.GridSolution.boundary_times` orders them).
     """
     m = tau.shape[0]
     plan = np.empty((7, m))
     flat_plan(tau, h_coef, rate, div_yield, vol, False, plan)
-    adj = np.empty(m)
-    dividends_ahead_spot(tau, expiry, rate, div_yield, div_tau, div_amt, adj)
-    lim = math.exp(x_min)
-    for k in range(m):
-        a = adj[k]
-        if is_put:
-            cap = lim * plan[4, k]
-            if cap < a:
-                a = cap
-        plan[3, k] = plan[3, k] + a
+    ahead = np.empty(m)
+    dividends_ahead(tau, expiry, rate, div_yield, div_tau, div_amt, not escrowed, ahead)
+    if not escrowed:
+        lim = math.exp(x_min)
+        for k in range(m):
+            a = ahead[k]
+            if is_put:
+                cap = lim * plan[4, k]
+                if cap < a:
+                    a = cap
+            plan[3, k] = plan[3, k] + a
     ex = node_exp(x_min, h, n)
     payoff_nodes(ex, is_put, 1.0, strike_index, v)
     for j in range(n):
@@ -1776,46 +1826,52 @@ def solve_spot_dividends(is_put, american, expiry, rate, div_yield, vol, x_min, 
             tan[p, j] = 0.0
     work = np.empty(n)
     held = np.empty(n)
+    exv = np.empty(n)
+    ex_k = np.empty(n)
+    b_pv = np.zeros(m + ev_idx.shape[0])
     tan_work = np.empty((n_par, n))
+    per_step = escrowed and american
     n_ev = ev_idx.shape[0]
     e = 0
     start = 0
     b = 0
     while start < m:
         last = ev_idx[e] if e < n_ev else m - 1
-        ms = last + 1 - start
-        seg = np.empty((7, ms))
-        seg_t = np.empty((3, ms))
-        for k in range(ms):
-            for r in range(7):
-                seg[r, k] = plan[r, start + k]
-            seg_t[0, k] = tau[start + k]
-            seg_t[1, k] = dt[start + k]
-            seg_t[2, k] = theta[start + k]
-        dco = np.empty((2 if n_par else 0, 3, ms if n_par else 0))
-        dfar = np.empty((2 if n_par else 0, 2, ms if n_par else 0))
-        if n_par:
-            tangent_coefficients(h, vol, is_put, american, ex[0], ex[n - 1], seg_t[0], seg[3],
-                                 seg[4], dco, dfar)
-        sb = np.empty(ms)
-        march_direct_tangents(
-            v, ex, x_min, h, seg_t[1], seg_t[2], seg[0], seg[1], seg[2], seg[3], seg[4], seg[5],
-            seg[6], is_put, american, sb, tan, dco, dfar, False,
-        )
-        for k in range(ms):
-            bnd[b] = sb[k]
-            b += 1
+        if per_step:
+            for k in range(start, last + 1):
+                # the nodes stand for S* = S - PV: the march's spot is e^x + PV_t(D)
+                for j in range(n):
+                    ex_k[j] = ex[j] + ahead[k]
+                _march_piece(v, ex_k, x_min, h, plan, tau, dt, theta, k, k + 1, is_put, True,
+                             vol, tan, bnd, b)
+                b_pv[b] = ahead[k]
+                b += 1
+        else:
+            _march_piece(v, ex, x_min, h, plan, tau, dt, theta, start, last + 1, is_put,
+                         american, vol, tan, bnd, b)
+            b += last + 1 - start
         if e < n_ev and last == ev_idx[e]:
             d = ev_amt[e]
-            dividend_jump_tangents(v, tan, payoff, x_min, h, d, 0.0, plan[3, last],
+            if escrowed:
+                pv_before = ahead[last] + d
+                _shifted_exercise(ex, pv_before, is_put, exv)
+            else:
+                pv_before = 0.0
+                for j in range(n):
+                    exv[j] = payoff[j]
+            drop = 0.0 if escrowed else d
+            if american:
+                value_after_drop(v, x_min, h, drop, plan[3, last], plan[4, last], is_put, True,
+                                 held)
+            dividend_jump_tangents(v, tan, exv, x_min, h, drop, pv_before, plan[3, last],
                                    plan[4, last], is_put, american, work, tan_work)
             if american:
-                value_after_drop(v, x_min, h, d, plan[3, last], plan[4, last], is_put, True, held)
                 for j in range(n):
-                    held[j] -= payoff[j]
-                bnd[b] = crossing(held, payoff, x_min, h, is_put)
+                    held[j] -= exv[j]
+                bnd[b] = crossing(held, exv, x_min, h, is_put)
             else:
                 bnd[b] = math.nan
+            b_pv[b] = pv_before
             b += 1
             for j in range(n):
                 v[j] = work[j]
@@ -1824,25 +1880,31 @@ def solve_spot_dividends(is_put, american, expiry, rate, div_yield, vol, x_min, 
                     tan[p, j] = tan_work[p, j]
             e += 1
         start = last + 1
+    if per_step:
+        for i in range(b):
+            bnd[i] = math.log(math.exp(bnd[i]) + b_pv[i])  # the critical spot S* + PV
+        _shifted_exercise(ex, escrow_pv, is_put, payoff)
 
 
 @njit(cache=True)
-def price_pair_spot_dividends(
-    is_put, american, expiry, rate, div_yield, vol, x_spot, strike, x_min, h, n, strike_index,
-    coef_c, coef_f, tau_c, dt_c, theta_c, ev_idx_c, tau_f, dt_f, theta_f, ev_idx_f, ev_amt,
-    div_tau, div_amt, n_par, out, bnd_x, raw, spot,
+def price_pair_cash_dividends(
+    is_put, american, escrowed, expiry, rate, div_yield, vol, x_spot, escrow_pv, strike, x_min,
+    h, n, strike_index, coef_c, coef_f, tau_c, dt_c, theta_c, ev_idx_c, tau_f, dt_f, theta_f,
+    ev_idx_f, ev_amt, div_tau, div_amt, n_par, out, bnd_x, raw, spot,
 ):
-    """:func:`price_pair` with cash dividends of the spot model: both grids of the Richardson
-    pair (:func:`solve_spot_dividends`) and their read-off at the spot.
+    """:func:`price_pair` with cash dividends: both grids of the Richardson pair
+    (:func:`solve_cash_dividends`) and their read-off at the spot.
 
     ``tau_*, dt_*, theta_*`` are the coarse and fine time grids (a level on every ex-date),
     ``ev_idx_*`` the levels of the ex-dates on each, ``ev_amt`` the dividend / strike paid
-    at each, ``div_tau, div_amt`` every dividend of the schedule (for the far field).
+    at each, ``div_tau, div_amt`` every dividend of the schedule. ``x_spot`` is
+    ``ln((S - PV(D)) / K)`` under the escrowed model, where ``escrow_pv`` is ``PV(D) / K``.
     ``n_par`` is 0, or 1 for the vol tangent. ``out`` is laid out as :func:`price_pair`'s
     (the rate tangents, not marched here, are zero); ``bnd_x`` (fine steps + ex-dates) gets
-    the fine grid's critical log-moneyness, ``raw`` and ``spot`` the critical spots (no
-    monotone fit: the boundary jumps at ex-dates).
+    the fine grid's critical log-moneyness (of the spot), ``raw`` and ``spot`` the critical
+    spots (no monotone fit: the boundary jumps at ex-dates).
     """
+    pv = escrow_pv if escrowed else 0.0
     for g in range(2):  # coarse, then fine; one call site each (compile time)
         fine = g == 1
         hg = 0.5 * h if fine else h
@@ -1856,19 +1918,24 @@ def price_pair_spot_dividends(
         v = np.empty(ng)
         payoff = np.empty(ng)
         tan = np.empty((n_par, ng))
-        solve_spot_dividends(
-            is_put, american, expiry, rate, div_yield, vol, x_min, hg, ng, kg,
+        solve_cash_dividends(
+            is_put, american, escrowed, expiry, rate, div_yield, vol, x_min, hg, ng, kg,
             coef_f if fine else coef_c, tau, dt_f if fine else dt_c,
-            theta_f if fine else theta_c, ev_idx, ev_amt, div_tau, div_amt, n_par, v, payoff,
-            tan, bnd,
+            theta_f if fine else theta_c, ev_idx, ev_amt, div_tau, div_amt, escrow_pv, n_par,
+            v, payoff, tan, bnd,
         )
         x_b = bnd[bnd.shape[0] - 1] if american else math.nan
+        if pv != 0.0 and math.isfinite(x_b):
+            # the boundary of the spot, read in the frame of the nodes (S - PV)
+            s_star = math.exp(x_b) - pv
+            x_b = math.log(s_star) if s_star > 0.0 else -math.inf
         out[8 + 2 * g] = 0.0
         out[9 + 2 * g] = 0.0
         for i in range(n_par + 1):  # the values, then the tangent (read like a European)
             val, dlt, gam, exd = read_off(
                 v if i == 0 else tan[i - 1], payoff, x_min, hg, x_spot, strike,
-                american and i == 0, x_b if i == 0 else math.nan, is_put, 0.0,
+                american and i == 0, x_b if i == 0 else math.nan, is_put,
+                pv if i == 0 else 0.0,
             )
             if i == 0:
                 out[4 * g] = val

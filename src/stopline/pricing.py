@@ -968,8 +968,8 @@ def _price_pair(
 def _event_time_grids(
     expiry: float, dividend_tau: tuple[float, ...], levels: int
 ) -> tuple[TimeGrid, TimeGrid, tuple[int, ...], tuple[int, ...], FloatArray]:
-    """The Richardson pair's time grids for cash dividends of the spot model
-    (:func:`~stopline.solve.time_grid_for`, then refined), the level of each ex-date on each
+    """The Richardson pair's time grids for cash dividends with ex-dates ``dividend_tau``
+    (:func:`~stopline.solve.time_grid_for`, then refined; none: the plain grids), the level of each ex-date on each
     (as :func:`stopline.solve._solve_with_dividends` finds it; -1 where none is close enough)
     and the fine grid's boundary times (each ex-date twice: after it, then just before it).
 
@@ -1007,18 +1007,18 @@ def _events(idx: tuple[int, ...], amounts: tuple[float, ...]) -> tuple[FloatArra
 def _price_pair_dividends(
     option: Option, market: Market, t: float, accuracy: str, greeks: str, solver: DirectSweep,
 ) -> Result | None:
-    """:func:`price` with cash dividends of the spot model in one kernel call per pair
-    (:func:`stopline._kernels.price_pair_spot_dividends`), or None where it does not apply.
+    """:func:`price` with cash dividends in one kernel call per pair
+    (:func:`stopline._kernels.price_pair_cash_dividends`), or None where it does not apply.
 
-    It applies with flat rate, yield and vol, the spot model, a preset and the direct sweep
-    (the caller checks those two), and no ex-date on the expiry date; where every dividend
-    falls after expiry, the flat pair (:func:`_price_pair`) serves. The numbers are the
-    general path's (the same grids, steps, jumps and read-off), except vega: the vol tangent
-    marched with the solution and carried through the jumps
+    It applies with flat rate, yield and vol, either dividend model, a preset and the direct
+    sweep (the caller checks those two), and no ex-date on the expiry date; where every
+    dividend falls after expiry, the flat pair (:func:`_price_pair`) serves. The numbers are
+    the general path's (the same grids, steps, jumps and read-off), except vega: the vol
+    tangent marched with the solution and carried through the jumps
     (:func:`stopline._kernels.dividend_jump_tangents`) instead of a central difference of
     re-solved prices. Rho stays a central difference of two re-solves, here compiled.
     """
-    if market.has_term_structure or market.dividend_model != "spot":
+    if market.has_term_structure:
         return None
     problem = problem_from_market(option, market, t)
     if not problem.dividend_tau:
@@ -1033,6 +1033,7 @@ def _price_pair_dividends(
         return dataclasses.replace(res, market=market, stats=stats)
     rate, q, vol = problem.rate, problem.div_yield, problem.vol
     american, is_put = option.is_american, option.is_put
+    escrowed = problem.escrowed
     sd = vol * math.sqrt(t)
     if min(problem.dividend_tau) <= 1e-12 or sd < MIN_SD_FOR_GRID or (
         american and _two_boundaries_possible(is_put, rate, q)
@@ -1041,33 +1042,38 @@ def _price_pair_dividends(
     name = check_choice("accuracy", accuracy, tuple(PRESETS))
     preset = PRESETS[name]
     k = option.strike
-    x_min, h, n, k_idx, _ = _preset_layout(problem.x_spot, t, rate, q, vol, american, preset)
+    x_min, h, n, k_idx, frame_y = _preset_layout(problem.x_spot, t, rate, q, vol, american,
+                                                 preset)
+    if frame_y and not problem.has_events:
+        return None  # an escrowed European solved in frame "y": the general path's
     levels = _coarse_levels(preset)
     if not american and sd > LONG_SD:
         levels = max(levels, min(math.ceil(levels * (sd / LONG_SD) ** 1.5), MAX_LONG_LEVELS))
-    time_c, time_f, idx_c, idx_f, b_tau = _event_time_grids(t, problem.dividend_tau, levels)
+    events = problem.dividend_tau if problem.has_events else ()
+    time_c, time_f, idx_c, idx_f, b_tau = _event_time_grids(t, events, levels)
     if -1 in idx_c or -1 in idx_f:
         return None
-    ev_c, amt_c = _events(idx_c, problem.dividend_amount)
-    ev_f, amt_f = _events(idx_f, problem.dividend_amount)
+    amounts = problem.dividend_amount if events else ()
+    ev_c, amt_c = _events(idx_c, amounts)
+    ev_f, amt_f = _events(idx_f, amounts)
     if not np.array_equal(amt_c, amt_f):
         return None
     div_tau = np.asarray(problem.dividend_tau)
     div_amt = np.asarray(problem.dividend_amount)
-    n_par = 0 if greeks == "grid" else 1
 
-    def pair(r: float, n_par: int, bnd: tuple[FloatArray, ...]) -> list[float]:
+    def pair(p: PDEProblem, n_par: int, bnd: FloatArray) -> list[float]:
         out = np.empty(_kernels.PAIR_OUT)
-        _kernels.price_pair_spot_dividends(
-            is_put, american, t, r, q, vol, problem.x_spot, k, x_min, h, n, k_idx,
-            coefficients(h, r, q, vol), coefficients(0.5 * h, r, q, vol), time_c.tau, time_c.dt,
-            time_c.theta, ev_c, time_f.tau, time_f.dt, time_f.theta, ev_f, amt_c, div_tau,
-            div_amt, n_par, out, *bnd,
+        r = p.rate
+        _kernels.price_pair_cash_dividends(
+            is_put, american, escrowed, t, r, q, vol, p.x_spot, p.escrow_pv, k, x_min, h, n,
+            k_idx, coefficients(h, r, q, vol), coefficients(0.5 * h, r, q, vol), time_c.tau,
+            time_c.dt, time_c.theta, ev_c, time_f.tau, time_f.dt, time_f.theta, ev_f, amt_c,
+            div_tau, div_amt, n_par, out, bnd[0], bnd[1], bnd[2],
         )
         return out.tolist()
 
     bnd = np.empty((3, b_tau.shape[0]))
-    o = pair(rate, n_par, (bnd[0], bnd[1], bnd[2]))
+    o = pair(problem, 0 if greeks == "grid" else 1, bnd)
     rc = GridReadout(o[0], o[1], o[2], o[3] != 0.0)
     rf = GridReadout(o[4], o[5], o[6], o[7] != 0.0)
     value, delta, gamma = _richardson(rc, rf, option, market, q, t)
@@ -1078,13 +1084,16 @@ def _price_pair_dividends(
     else:
         vega, rho = _extrapolate(o[8], o[10]), math.nan
         if greeks == "full":
+            # re-solves on the same grids (under the escrowed model the rate also moves the
+            # present value of the dividends, so the spot's node)
             scratch = np.empty((3, b_tau.shape[0]))
             bumped = []
             for dr in (RATE_BUMP, -RATE_BUMP):
-                ob = pair(rate + dr, 0, (scratch[0], scratch[1], scratch[2]))
+                p = problem_from_market(option, bumped_market(market, rate=dr), t)
+                ob = pair(p, 0, scratch)
                 bumped.append(_extrapolate(ob[0], ob[4]))
             rho = central_difference(bumped[0], bumped[1], RATE_BUMP)
-    theta = theta_from_pde(market.spot, value, delta, gamma, rate, q, vol, rf.exercised)
+    theta = theta_at_valuation(problem, market.spot, k, value, delta, gamma, rf.exercised)
     warnings = list(problem.warnings) + ([] if n < MAX_COARSE_NODES else [_CAP_WARNING])
     warnings += _health_warnings(abs(rf.value - rc.value) / 3.0, k, name,
                                  (value, delta, gamma, theta))
