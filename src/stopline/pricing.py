@@ -680,7 +680,10 @@ def price(
     unless the volatility is so low for the drift that the drift-free frame is needed), both
     grids are solved and read in one compiled call (:func:`stopline._kernels.price_pair`);
     it applies the same rules as the general path and gives the same numbers, about three
-    times faster at "fast".
+    times faster at "fast". With cash dividends (either model) and otherwise the same
+    conditions, :func:`stopline._kernels.price_pair_cash_dividends` does likewise (the same
+    numbers; vega by the tangent): measured 1.5x (spot model) to 3.5x (escrowed) faster than
+    the general path for the price alone, 2x to 5x with vega and rho.
 
     References
     ----------
