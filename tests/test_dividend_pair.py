@@ -144,7 +144,7 @@ def _pair_raw(opt: Option, mkt: Market, vol: float, n_par: int) -> np.ndarray:
         p.escrow_pv, opt.strike, x_min, h, n, k_idx, coefficients(h, p.rate, p.div_yield, vol),
         coefficients(0.5 * h, p.rate, p.div_yield, vol), tc.tau, tc.dt, tc.theta, ev_c, tf.tau,
         tf.dt, tf.theta, ev_f, amt, np.asarray(p.dividend_tau), np.asarray(p.dividend_amount),
-        n_par, out, bnd[0], bnd[1], bnd[2],
+        n_par, out, bnd[0], bnd[1], bnd[2], False,
     )
     return out
 
@@ -309,7 +309,7 @@ def test_solve_cash_dividends_equals_solve(american: bool, is_put: bool, model: 
         is_put, american, p.escrowed, 1.0, p.rate, p.div_yield, p.vol, x_min, h, n, k_idx,
         coefficients(h, p.rate, p.div_yield, p.vol), tg.tau, tg.dt, tg.theta, ev, amt,
         np.asarray(p.dividend_tau), np.asarray(p.dividend_amount), p.escrow_pv, 0, v, payoff,
-        np.empty((0, n)), bnd,
+        np.empty((0, n)), bnd, False,
     )
     np.testing.assert_allclose(v, ref.values, rtol=1e-13, atol=1e-16)
     np.testing.assert_allclose(payoff, ref.payoff, rtol=1e-14, atol=1e-16)

@@ -1475,7 +1475,7 @@ def price_pair(
 # ---------------------------------------------------------------------------------------------
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _value_after_weights(v, x, x0, h, d, df_r, df_q, is_put, american):
     """:func:`_value_after` and how it depends on the nodes: ``(value, j0, c0, c1, c2, c3)``
     with ``d value = sum_i c_i dv[j0 + i]`` for a change ``dv`` of the values that moves
@@ -1514,7 +1514,7 @@ def _value_after_weights(v, x, x0, h, d, df_r, df_q, is_put, american):
     return val, j0, c0, c1, c2, c3
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _value_after_slope(v, x, x0, h, d, df_r, df_q, is_put, american):
     """``d/dx`` of :func:`_value_after` at ``x`` (the same branches: the far field below the
     first node, zero where the limiter clamps, else the cubic's slope)."""
@@ -1727,9 +1727,9 @@ def _shifted_exercise(ex, pv, is_put, out):
         out[j] = e if e > 0.0 else 0.0
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _march_piece(v, ex, x_min, h, plan, tau, dt, theta, start, stop, is_put, american, vol,
-                 tan, bnd, b):
+                 tan, bnd, b, fitted):
     """March steps ``start .. stop - 1`` of a flat plan (rows of :func:`flat_plan`) with the
     direct sweep and the vol tangent (``tan``, (n_par, n)), on nodes standing for the spots
     ``ex``; the critical log-moneyness of each step into ``bnd[b:]``."""
@@ -1752,7 +1752,7 @@ def _march_piece(v, ex, x_min, h, plan, tau, dt, theta, start, stop, is_put, ame
     sb = np.empty(ms)
     march_direct_tangents(
         v, ex, x_min, h, seg_t[1], seg_t[2], seg[0], seg[1], seg[2], seg[3], seg[4], seg[5],
-        seg[6], is_put, american, sb, tan, dco, dfar, False,
+        seg[6], is_put, american, sb, tan, dco, dfar, fitted,
     )
     for k in range(ms):
         bnd[b + k] = sb[k]
@@ -1761,7 +1761,7 @@ def _march_piece(v, ex, x_min, h, plan, tau, dt, theta, start, stop, is_put, ame
 @njit(cache=True)
 def solve_cash_dividends(is_put, american, escrowed, expiry, rate, div_yield, vol, x_min, h, n,
                          strike_index, h_coef, tau, dt, theta, ev_idx, ev_amt, div_tau, div_amt,
-                         escrow_pv, n_par, v, payoff, tan, bnd):
+                         escrow_pv, n_par, v, payoff, tan, bnd, fitted):
     """One grid with cash dividends, flat data, frame "x", the direct sweep:
     :func:`stopline.solve.solve` for that case (the same steps, in one call).
 
@@ -1802,6 +1802,10 @@ def solve_cash_dividends(is_put, american, escrowed, expiry, rate, div_yield, vo
         Written: critical log-moneyness of the spot after each step and, after the steps
         ending at an ex-date, one entry for the state just before it (as
         :attr:`stopline.solve.GridSolution.boundary_times` orders them).
+    fitted : bool
+        Passed on to :func:`march_direct_tangents`; False, as the general path marches with
+        cash dividends (:func:`stopline.solve.fitted_boundary`). An argument rather than a
+        constant so that the march compiled for the flat problem serves here too.
     """
     m = tau.shape[0]
     plan = np.empty((7, m))
@@ -1842,13 +1846,13 @@ def solve_cash_dividends(is_put, american, escrowed, expiry, rate, div_yield, vo
                 # the nodes stand for S* = S - PV: the march's spot is e^x + PV_t(D)
                 for j in range(n):
                     ex_k[j] = ex[j] + ahead[k]
-                _march_piece(v, ex_k, x_min, h, plan, tau, dt, theta, k, k + 1, is_put, True,
-                             vol, tan, bnd, b)
+                _march_piece(v, ex_k, x_min, h, plan, tau, dt, theta, k, k + 1, is_put,
+                             american, vol, tan, bnd, b, fitted)
                 b_pv[b] = ahead[k]
                 b += 1
         else:
             _march_piece(v, ex, x_min, h, plan, tau, dt, theta, start, last + 1, is_put,
-                         american, vol, tan, bnd, b)
+                         american, vol, tan, bnd, b, fitted)
             b += last + 1 - start
         if e < n_ev and last == ev_idx[e]:
             d = ev_amt[e]
@@ -1890,7 +1894,7 @@ def solve_cash_dividends(is_put, american, escrowed, expiry, rate, div_yield, vo
 def price_pair_cash_dividends(
     is_put, american, escrowed, expiry, rate, div_yield, vol, x_spot, escrow_pv, strike, x_min,
     h, n, strike_index, coef_c, coef_f, tau_c, dt_c, theta_c, ev_idx_c, tau_f, dt_f, theta_f,
-    ev_idx_f, ev_amt, div_tau, div_amt, n_par, out, bnd_x, raw, spot,
+    ev_idx_f, ev_amt, div_tau, div_amt, n_par, out, bnd_x, raw, spot, fitted,
 ):
     """:func:`price_pair` with cash dividends: both grids of the Richardson pair
     (:func:`solve_cash_dividends`) and their read-off at the spot.
@@ -1902,7 +1906,8 @@ def price_pair_cash_dividends(
     ``n_par`` is 0, or 1 for the vol tangent. ``out`` is laid out as :func:`price_pair`'s
     (the rate tangents, not marched here, are zero); ``bnd_x`` (fine steps + ex-dates) gets
     the fine grid's critical log-moneyness (of the spot), ``raw`` and ``spot`` the critical
-    spots (no monotone fit: the boundary jumps at ex-dates).
+    spots (no monotone fit: the boundary jumps at ex-dates). ``fitted``: False (see
+    :func:`solve_cash_dividends`).
     """
     pv = escrow_pv if escrowed else 0.0
     for g in range(2):  # coarse, then fine; one call site each (compile time)
@@ -1922,7 +1927,7 @@ def price_pair_cash_dividends(
             is_put, american, escrowed, expiry, rate, div_yield, vol, x_min, hg, ng, kg,
             coef_f if fine else coef_c, tau, dt_f if fine else dt_c,
             theta_f if fine else theta_c, ev_idx, ev_amt, div_tau, div_amt, escrow_pv, n_par,
-            v, payoff, tan, bnd,
+            v, payoff, tan, bnd, fitted,
         )
         x_b = bnd[bnd.shape[0] - 1] if american else math.nan
         if pv != 0.0 and math.isfinite(x_b):
