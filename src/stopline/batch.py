@@ -89,9 +89,9 @@ def price_many(
         Preset for every row, as in :func:`stopline.price`.
     method : {"direct", "psor"} or a solver instance
         Exercise solver for every row.
-    greeks : {"full", "grid"}
-        As in :func:`stopline.price`: ``"grid"`` skips the vega and rho re-solves (about five
-        times faster for American options), the choice for re-pricing a book.
+    greeks : {"full", "grid", "vega"}
+        As in :func:`stopline.price`: ``"grid"`` skips vega and rho (their tangents or
+        re-solves), the choice for re-pricing a book; ``"vega"`` skips rho only.
     workers : int
         Processes to use; 1 prices in this process. More than the rows (or the cores) is
         allowed but gains nothing.
