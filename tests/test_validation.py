@@ -204,3 +204,14 @@ def test_approximations_are_checked_as_approximations(run) -> None:
                    "reference Bjerksund-Stensland (2002)", "reference Black-Scholes-Merton",
                    "reference Roll-Geske-Whaley"):
         assert prefix in names, prefix
+
+
+def test_provenance_words_are_explained(run) -> None:
+    # The issue: each published table says whether it is from memory. Sources say
+    # "recalled" or "seen"; the summary and the report say what the words mean.
+    from stopline.validation_report import PROVENANCE
+
+    assert "'recalled' are from memory" in PROVENANCE and "'seen'" in PROVENANCE
+    assert summary(run)["provenance"] == PROVENANCE
+    text = render_html(run, {})
+    assert "&#x27;recalled&#x27; are from memory" in text
