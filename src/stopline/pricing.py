@@ -948,7 +948,10 @@ def _price_pair(
                   name)
 
 
-def _read(sol: GridSolution, problem: PDEProblem, strike: float) -> GridReadout:
+def _read(
+    sol: GridSolution, problem: PDEProblem, strike: float, x_spot: float | None = None
+) -> GridReadout:
+    """Value, delta and gamma read at the spot (or at ``x_spot``, in the nodes' frame)."""
     x_boundary = float(sol.report.boundary_x[-1]) if problem.american else math.nan
     pv = problem.escrow_pv if problem.escrowed else 0.0
     if pv and math.isfinite(x_boundary):
@@ -956,7 +959,8 @@ def _read(sol: GridSolution, problem: PDEProblem, strike: float) -> GridReadout:
         s_star = math.exp(x_boundary) - pv
         x_boundary = math.log(s_star) if s_star > 0.0 else -math.inf
     return read_at_spot(
-        sol.values, sol.payoff, sol.x_min, sol.space.h, problem.x_spot, strike,
+        sol.values, sol.payoff, sol.x_min, sol.space.h,
+        problem.x_spot if x_spot is None else x_spot, strike,
         problem.american, x_boundary, problem.is_put, pv=pv,
     )
 
