@@ -31,17 +31,23 @@ def _close(num: float, exact: float, strike: float = 100.0) -> bool:
     return abs(num - exact) <= max(1e-3 * abs(exact), 1e-5 * strike)
 
 
-def test_european_greeks_match_black_scholes_merton_at_standard() -> None:
+@pytest.mark.parametrize("method", ["direct", "fitted"])
+def test_european_greeks_match_black_scholes_merton_at_standard(method: str) -> None:
     # Source: Black-Scholes (1973) / Merton (1973) closed-form Greeks (tests/_bsm.py).
     bad = []
     for kind, s, t, v, (r, q) in EURO_GRID:
-        res = price(Option(kind, 100.0, t, style="european"), Market(s, r, v, q))
+        res = price(Option(kind, 100.0, t, style="european"), Market(s, r, v, q), method=method)
         ex = bsm(kind, s, 100.0, t, r, q, v)
         if abs(res.delta - ex["delta"]) > 5e-5:
             bad.append((kind, s, t, v, r, q, "delta", res.delta, ex["delta"]))
         for name in ("gamma", "theta", "vega", "rho"):
             if not _close(getattr(res, name), ex[name]):
                 bad.append((kind, s, t, v, r, q, name, getattr(res, name), ex[name]))
+        # 1e-5 x strike is a floor for money amounts; gamma is money per money squared, so
+        # its floor in kind is 1e-5 / strike (far stricter than the literal one: measured
+        # within 0.15 of it over a wider spread of 480 contracts)
+        if abs(res.gamma - ex["gamma"]) > max(1e-3 * ex["gamma"], 1e-5 / 100.0):
+            bad.append((kind, s, t, v, r, q, "gamma (scaled floor)", res.gamma, ex["gamma"]))
     assert not bad
 
 
