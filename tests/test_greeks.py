@@ -158,7 +158,7 @@ NEAR_BOUNDARY = [
 
 @pytest.mark.parametrize("method", [
     pytest.param("direct", marks=pytest.mark.xfail(strict=True, reason=(
-        "Crank-Nicolson's gamma next to the boundary is 8-60 % off and negative for the "
+        "Crank-Nicolson's gamma next to the boundary is 3-62 % off, and negative for the "
         "2.5-year call (measured); the solver is the lead's to change"))),
     "fitted",
 ])

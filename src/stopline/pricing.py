@@ -215,11 +215,14 @@ class Result:
         value as time passes), from the Black-Scholes equation at valuation.
     vega : float
         dV/dvol per unit of volatility (divide by 100 for one vol point), for a parallel shift
-        of a vol curve. American with flat inputs, no cash dividends and the direct sweep: the
-        exact derivative of the discrete solution, marched alongside it (tangent-linear, no
-        bump), read at the spot and extrapolated like the price. Other American cases, or
-        with dividends or curves: a central difference of re-solved prices with the vol
-        bumped by 1 % of itself. European with flat inputs: ``vol T S^2 gamma``.
+        of a vol curve. American with flat inputs, no cash dividends and the direct or fitted
+        sweep: the exact derivative of the discrete solution, marched alongside it on the
+        same two grids (tangent-linear, no bump, no extra solve), read at the spot and
+        extrapolated like the price. Other American cases (projected SOR, cash dividends,
+        curves), or a European option with dividends or curves: a central difference of
+        prices re-solved on the same two grids with the vol bumped up and down by 1 % of
+        itself. European with flat inputs: ``vol T S^2 gamma`` (an identity of the model).
+        See :mod:`stopline.greeks`.
     rho : float
         dV/drate per unit of rate (divide by 10,000 for one basis point), for a parallel shift
         of a rate curve; computed like vega (tangent-linear; or the rate bumped by 1e-3; or,
