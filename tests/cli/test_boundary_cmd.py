@@ -135,3 +135,16 @@ def test_price_plot_rejects_a_missing_folder(runner: CliRunner, tmp_path: Path) 
     # common practice: bad input -> one line naming the field, exit 2, no traceback.
     r = runner.invoke(app, ["price", *CONTRACT, "--expiry", "1", "--plot", str(tmp_path / "no" / "v.png")])
     assert r.exit_code == 2 and "plot=" in r.output and "Traceback" not in r.output
+
+
+def test_boundary_takes_the_same_contract_and_market_flags_as_price() -> None:
+    # common practice: one set of contract and market flags for both commands; each adds
+    # only its own outputs (price: --json, --plot; boundary: --out, --csv).
+    import typer.main
+
+    commands = typer.main.get_command(app).commands
+    flags = {name: {o for p in commands[name].params for o in p.opts} for name in ("price", "boundary")}
+    assert flags["price"] - {"--json", "--plot"} == flags["boundary"] - {"--out", "--csv"}
+    assert {"--kind", "--spot", "--strike", "--expiry", "--rate", "--vol", "--div-yield",
+            "--valuation-date", "--dividend", "--dividend-model", "--accuracy",
+            "--method"} <= flags["boundary"]
