@@ -252,3 +252,16 @@ def test_smile_line_goes_through_the_out_of_the_money_quote(tmp_path: Path, figu
     assert [round(y, 4) for y in line.get_ydata()] == [30.0, 30.0]
     off = [tuple(p) for c in ax.collections for p in c.get_offsets()]
     assert sorted((x, round(y, 4)) for x, y in off) == [(90.0, 40.0), (110.0, 40.0)]
+
+
+def test_unusable_out_folder_is_a_clean_error(tmp_path: Path) -> None:
+    header = ["id", "kind", "style", "spot", "strike", "expiry", "rate", "quote"]
+    src = _write(tmp_path / "implied.csv", header, [["a", "put", "american", 100, 100, 0.5, 0.05, 5]])
+    before = src.read_text()
+    # --out is a file
+    res = runner.invoke(app, ["implied", str(src), "--out", str(src)])
+    assert res.exit_code == 2 and "--out=" in res.output and "cannot hold" in res.output
+    # --out would overwrite the quotes themselves
+    res = runner.invoke(app, ["implied", str(src), "--out", str(tmp_path)])
+    assert res.exit_code == 2 and "would overwrite the quotes file" in res.output
+    assert src.read_text() == before and "Traceback" not in res.output

@@ -285,6 +285,22 @@ def smile_figure(outcomes: list[RowOutcome], title: str) -> Figure:
     return fig
 
 
+def _prepare_out(out: Path, quotes: Path) -> None:
+    """Create ``out`` and check it can take the answers before any work is done."""
+    from ..errors import InputError
+
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+        with tempfile.TemporaryFile(dir=out):
+            pass
+    except OSError as exc:
+        raise InputError("--out", str(out), f"cannot hold the answers ({exc.strerror or exc})"
+                         ) from None
+    if (out / "implied.csv").resolve() == quotes.resolve():
+        raise InputError("--out", str(out), "would overwrite the quotes file implied.csv; "
+                         "choose another folder")
+
+
 def _write_png(path: Path, fig: Figure) -> None:
     _write_atomic(path, lambda tmp: fig.savefig(tmp, format="png", dpi=130))
 
@@ -311,7 +327,7 @@ def implied_cmd(
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TimeElapsedColumn
 
     header, rows = _read_quotes(quotes)
-    out.mkdir(parents=True, exist_ok=True)
+    _prepare_out(out, quotes)
     n_workers = workers or os.cpu_count() or 1
     n_workers = max(1, min(n_workers, len(rows)))
     console = Console(stderr=True)
