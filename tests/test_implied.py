@@ -387,6 +387,24 @@ def test_quote_just_above_intrinsic_past_a_wide_flat_region() -> None:
     assert 0.4 < res.vol < 0.6
 
 
+@pytest.mark.parametrize("row", [
+    ("call", "american", 50.0, 100.0, 5.0, 0.03, 0.03, 2.5),
+    ("put", "american", 200.0, 100.0, 5.0, 0.03, 0.03, 2.5),
+    ("put", "american", 70.0, 100.0, 5.0, 0.05, 0.0, 2.5),
+], ids=["call-otm", "put-otm", "put-itm"])
+def test_quote_above_the_european_upper_bound_starts_high(row: tuple) -> None:
+    # Only a large vol puts an American price above the European upper bound (S e^{-qT} for a
+    # call, K e^{-rT} for a put); the search starts high there instead of near 0.05 and
+    # doubling up (it took 10 to 13 prices; now 6 or 7). Count, not time.
+    opt, mkt, vol = _case(row)
+    quote = price(opt, mkt, greeks="grid").price
+    euro_high = (mkt.spot * math.exp(-mkt.div_yield * opt.expiry) if opt.kind == "call"
+                 else opt.strike * math.exp(-mkt.rate * opt.expiry))
+    assert quote > euro_high
+    res = implied_vol_detail(opt, mkt, quote)
+    assert abs(res.vol - vol) <= 1e-5 and res.price_calls <= 8
+
+
 @pytest.mark.parametrize("row", [SPREAD[0], SPREAD[4], SPREAD[12]], ids=["atm", "itm", "long"])
 def test_price_does_not_jump_where_the_grid_gains_a_node(row: tuple) -> None:
     # The root search relies on a price continuous in the vol. The grid's spacing moves
