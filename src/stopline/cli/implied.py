@@ -318,7 +318,8 @@ def implied_cmd(
     """Implied vols of a chain of American or European quotes, with a smile plot.
 
     Columns: id, kind, style, spot, strike, expiry (years or YYYY-MM-DD), rate, quote.
-    Optional: div_yield, valuation_date. Other columns are carried through.
+    Optional: div_yield, dividends (WHEN:AMOUNT;...), valuation_date. Other columns are
+    carried through.
     Writes OUT/implied.csv and OUT/smile.png; exit code 1 if any row had an error.
     """
     from concurrent.futures import ProcessPoolExecutor
