@@ -2,9 +2,9 @@
 
 Input: a CSV with a header naming the columns ``id, kind, style, spot, strike, expiry, rate,
 quote`` and optionally ``div_yield``, ``dividends`` (cash dividends ``WHEN:AMOUNT;...``, as in
-``stopline crosscheck``) and ``valuation_date`` (needed when ``expiry`` or an ex-date is a date;
-year fractions ACT/365 fixed). Other columns are carried through untouched; a column named
-twice is refused.
+``stopline crosscheck``), ``dividend_model`` (``spot``, the default, or ``escrowed``) and
+``valuation_date`` (needed when ``expiry`` or an ex-date is a date; year fractions ACT/365
+fixed). Other columns are carried through untouched; a column named twice is refused.
 
 Output, in ``--out DIR``:
 
@@ -48,7 +48,7 @@ __all__ = [
 ]
 
 REQUIRED_COLUMNS = ("id", "kind", "style", "spot", "strike", "expiry", "rate", "quote")
-OPTIONAL_COLUMNS = ("div_yield", "dividends", "valuation_date")
+OPTIONAL_COLUMNS = ("div_yield", "dividends", "dividend_model", "valuation_date")
 ADDED_COLUMNS = ("implied_vol", "status", "note")
 
 
@@ -115,6 +115,7 @@ def solve_row(row: dict[str, str | None], accuracy: str = "standard") -> RowOutc
     message as the note.
     """
     from ..contract import Option
+    from ..dividends import dividend_schedule
     from ..errors import StoplineError
     from ..implied import implied_vol_detail
     from ..market import Market
@@ -137,15 +138,19 @@ def solve_row(row: dict[str, str | None], accuracy: str = "standard") -> RowOutc
             _number(row, "spot"), _number(row, "rate"), 0.2,
             div_yield=_number(row, "div_yield", 0.0), valuation_date=valuation,
             dividends=(row.get("dividends") or "").strip(),
+            dividend_model=(row.get("dividend_model") or "").strip() or "spot",
         )
         t = option.time_to_expiry(market.valuation_date)
+        ignored = dividend_schedule(market.dividends, t, market.valuation_date).warnings
         res = implied_vol_detail(option, market, _number(row, "quote"), accuracy=accuracy)
     except (StoplineError, _RowShape) as exc:
         return RowOutcome(math.nan, "error", str(exc), strike, t, label)
     except Exception as exc:  # noqa: BLE001 - a batch keeps every row; say it is unexpected
         return RowOutcome(math.nan, "error", f"unexpected {type(exc).__name__}: {exc} (please "
                           "report this row)", strike, t, label)
-    return RowOutcome(res.vol, "ok", res.note, strike, t, label, res.price_calls, option.kind,
+    # a dividend left out (after expiry, or on the valuation date) is said in the note
+    note = "; ".join([*ignored, res.note] if res.note else ignored)
+    return RowOutcome(res.vol, "ok", note, strike, t, label, res.price_calls, option.kind,
                       market.spot)
 
 
@@ -318,8 +323,8 @@ def implied_cmd(
     """Implied vols of a chain of American or European quotes, with a smile plot.
 
     Columns: id, kind, style, spot, strike, expiry (years or YYYY-MM-DD), rate, quote.
-    Optional: div_yield, dividends (WHEN:AMOUNT;...), valuation_date. Other columns are
-    carried through.
+    Optional: div_yield, dividends (WHEN:AMOUNT;...), dividend_model (spot or escrowed),
+    valuation_date. Other columns are carried through.
     Writes OUT/implied.csv and OUT/smile.png; exit code 1 if any row had an error.
     """
     from concurrent.futures import ProcessPoolExecutor
