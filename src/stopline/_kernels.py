@@ -839,17 +839,24 @@ def thomas_repeat(rhs0, a, b, c, n_solves, out):
 
 
 @njit(cache=True)
-def _value_after(v, x, x0, h, d, df_r, df_q, is_put, american):
+def _value_after(v, x, x0, h, d, df_r, df_q, ahead, is_put, american):
     """Value / strike after the ex-date at ``ln(max(e^x - d, 0))``, read off the nodes ``v``.
 
     A four-point Lagrange cubic in ``x`` limited to the range of the two bracketing nodes
     (so a monotone value stays monotone and non-negative); below the first node, the
-    far-field value of :func:`far_value` at the dropped spot.
+    far-field value of :func:`far_value` at the dropped spot ``s``, whose discounted forward
+    ``s df_q`` the dividends still ahead (``ahead``, discounted like it) lower, but not below
+    zero: a put there is worth at most ``df_r``.
     """
     n = v.shape[0]
     s = math.exp(x) - d
     if s <= math.exp(x0):
-        return far_value(s if s > 0.0 else 0.0, df_r, df_q, is_put, american)
+        if s < 0.0:
+            s = 0.0
+        carry = s * df_q
+        if ahead < carry:
+            carry = ahead
+        return far_value(s, df_r + carry, df_q, is_put, american)
     y = (math.log(s) - x0) / h
     i = int(math.floor(y))
     if i > n - 2:
@@ -887,14 +894,14 @@ def _exercise_value(x, pv, is_put):
 
 
 @njit(cache=True)
-def _held_or_exercised(v, x, x0, h, d, pv, df_r, df_q, is_put):
-    w = _value_after(v, x, x0, h, d, df_r, df_q, is_put, True)
+def _held_or_exercised(v, x, x0, h, d, pv, df_r, df_q, ahead, is_put):
+    w = _value_after(v, x, x0, h, d, df_r, df_q, ahead, is_put, True)
     e = _exercise_value(x, pv, is_put)
     return w if w > e else e
 
 
 @njit(cache=True)
-def dividend_jump(v, payoff, x0, h, d, pv, df_r, df_q, is_put, american, out):
+def dividend_jump(v, payoff, x0, h, d, pv, df_r, df_q, ahead, is_put, american, out):
     """Values just before an ex-dividend date from those just after.
 
     ``out_j = v(ln(max(e^{x_j} - d, 0)))`` (the spot drops by ``d``), and for an American
@@ -917,6 +924,9 @@ def dividend_jump(v, payoff, x0, h, d, pv, df_r, df_q, is_put, american, out):
         Shift of the spot in the exercise value / strike, >= 0.
     df_r, df_q : float
         Discount factors for rate and yield from expiry to the ex-date (far-field values).
+    ahead : float
+        Dividends / strike after this one, discounted at the rate to the ex-date and at the
+        yield from expiry to their ex-dates (lower the far field's forward; 0 if none).
     is_put, american : bool
         Contract flags.
     out : ndarray, shape (n,)
@@ -939,18 +949,18 @@ def dividend_jump(v, payoff, x0, h, d, pv, df_r, df_q, is_put, american, out):
         xj = x0 + j * h
         xl = xj - half
         xr = xj + half
-        w = _value_after(v, xj, x0, h, d, df_r, df_q, is_put, american)
+        w = _value_after(v, xj, x0, h, d, df_r, df_q, ahead, is_put, american)
         e = payoff[j] if american else 0.0
         xk = math.nan
         if american:
-            gl = _value_after(v, xl, x0, h, d, df_r, df_q, is_put, True) - _exercise_value(xl, pv, is_put)
-            gr = _value_after(v, xr, x0, h, d, df_r, df_q, is_put, True) - _exercise_value(xr, pv, is_put)
+            gl = _value_after(v, xl, x0, h, d, df_r, df_q, ahead, is_put, True) - _exercise_value(xl, pv, is_put)
+            gr = _value_after(v, xr, x0, h, d, df_r, df_q, ahead, is_put, True) - _exercise_value(xr, pv, is_put)
             if gl * gr < 0.0:
                 a = xl
                 b = xr
                 for _ in range(40):
                     m = 0.5 * (a + b)
-                    gm = _value_after(v, m, x0, h, d, df_r, df_q, is_put, True) - _exercise_value(
+                    gm = _value_after(v, m, x0, h, d, df_r, df_q, ahead, is_put, True) - _exercise_value(
                         m, pv, is_put
                     )
                     if (gm < 0.0) == (gl < 0.0):
@@ -969,21 +979,21 @@ def dividend_jump(v, payoff, x0, h, d, pv, df_r, df_q, is_put, american, out):
             ln = hi - lo
             for z in (c - g * ln, c + g * ln):
                 if american:
-                    total += 0.5 * ln * _held_or_exercised(v, z, x0, h, d, pv, df_r, df_q, is_put)
+                    total += 0.5 * ln * _held_or_exercised(v, z, x0, h, d, pv, df_r, df_q, ahead, is_put)
                 else:
-                    total += 0.5 * ln * _value_after(v, z, x0, h, d, df_r, df_q, is_put, False)
+                    total += 0.5 * ln * _value_after(v, z, x0, h, d, df_r, df_q, ahead, is_put, False)
         out[j] = total / h
 
 
 @njit(cache=True)
-def value_after_drop(v, x0, h, d, df_r, df_q, is_put, american, out):
+def value_after_drop(v, x0, h, d, df_r, df_q, ahead, is_put, american, out):
     """``out_j = v(ln(max(e^{x_j} - d, 0)))``: the held value just before an ex-date.
 
     As :func:`dividend_jump` without the exercise floor and without cell averaging; the
     American flag only sets the far-field value below the grid.
     """
     for j in range(v.shape[0]):
-        out[j] = _value_after(v, x0 + j * h, x0, h, d, df_r, df_q, is_put, american)
+        out[j] = _value_after(v, x0 + j * h, x0, h, d, df_r, df_q, ahead, is_put, american)
 
 
 @njit(cache=True, fastmath={"contract"})
