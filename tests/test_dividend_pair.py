@@ -40,6 +40,9 @@ CASES = [
     (Option("put", 100.0, 2.0), Market(90.0, 0.05, 0.25, dividends=[(0.25 * i, 1.5) for i in range(1, 8)])),
     (Option("put", 100.0, 0.5, "european"), Market(60.0, 0.02, 0.6, dividends=[(0.2, 25.0)])),
     (Option("call", 100.0, 0.25), Market(130.0, 0.04, 0.35, dividends=[(1.0 / 365.0, 3.0)])),
+    # an American put whose dividends can take the spot to zero (the far field's floor)
+    (Option("put", 40.0, 1.0), Market(30.0, 0.05, 0.4, dividends=[(0.3, 6.0), (0.6, 6.0),
+                                                                  (0.9, 6.0)])),
     (Option("put", 100.0, 1.0), Market(100.0, 0.05, 0.3, dividends=[(0.3, 1.0), (0.8, 1.0)],
                                        dividend_model="escrowed")),
     (Option("call", 80.0, 0.5), Market(80.0, 0.06, 0.30, dividends=[(0.25, 4.0)],
@@ -220,14 +223,14 @@ def _lagrange_twin(v: np.ndarray, x: float, x0: float, h: float, d: float) -> tu
 
 @pytest.mark.parametrize("is_put", [True, False])
 @pytest.mark.parametrize("american", [True, False])
-@pytest.mark.parametrize("d", [0.05, 0.5])
-def test_dividend_jump_tangents_values_equal_dividend_jump(is_put, american, d) -> None:
+@pytest.mark.parametrize(("d", "ahead"), [(0.05, 0.0), (0.5, 0.0), (0.5, 0.2)])
+def test_dividend_jump_tangents_values_equal_dividend_jump(is_put, american, d, ahead) -> None:
     v, tan, payoff, x0, h = _setup(is_put)
     out, out_t = np.empty_like(v), np.empty_like(tan)
-    _kernels.dividend_jump_tangents(v, tan, payoff, x0, h, d, 0.0, 0.97, 0.99, is_put, american,
-                                    out, out_t)
+    _kernels.dividend_jump_tangents(v, tan, payoff, x0, h, d, 0.0, 0.97, 0.99, ahead, is_put,
+                                    american, out, out_t)
     ref = np.empty_like(v)
-    _kernels.dividend_jump(v, payoff, x0, h, d, 0.0, 0.97, 0.99, is_put, american, ref)
+    _kernels.dividend_jump(v, payoff, x0, h, d, 0.0, 0.97, 0.99, ahead, is_put, american, ref)
     assert out.tolist() == ref.tolist()  # the same operations: bitwise equal
     # tangents: central differences of the jump in each direction (the jump is linear in
     # the values away from the limiter's switches and the kink cells, so only rounding, 1e-10,
@@ -235,10 +238,10 @@ def test_dividend_jump_tangents_values_equal_dividend_jump(is_put, american, d) 
     eps = 1e-6
     for p in range(tan.shape[0]):
         up, down = np.empty_like(v), np.empty_like(v)
-        _kernels.dividend_jump(v + eps * tan[p], payoff, x0, h, d, 0.0, 0.97, 0.99, is_put,
-                               american, up)
-        _kernels.dividend_jump(v - eps * tan[p], payoff, x0, h, d, 0.0, 0.97, 0.99, is_put,
-                               american, down)
+        _kernels.dividend_jump(v + eps * tan[p], payoff, x0, h, d, 0.0, 0.97, 0.99, ahead,
+                               is_put, american, up)
+        _kernels.dividend_jump(v - eps * tan[p], payoff, x0, h, d, 0.0, 0.97, 0.99, ahead,
+                               is_put, american, down)
         fd = (up - down) / (2.0 * eps)
         np.testing.assert_allclose(out_t[p], fd, rtol=0, atol=1e-8)
         # off the averaged cells, the twin's weights applied to the tangent
@@ -246,7 +249,7 @@ def test_dividend_jump_tangents_values_equal_dividend_jump(is_put, american, d) 
         checked = 0
         for j in range(v.size):
             s = math.exp(x[j]) - d
-            gaps = [_after_twin(v, z, x0, h, d, 0.97, 0.99, is_put, True)
+            gaps = [_after_twin(v, z, x0, h, d, 0.97, 0.99, is_put, True, ahead)
                     - max(1.0 - math.exp(z) if is_put else math.exp(z) - 1.0, 0.0)
                     for z in (x[j] - 0.5 * h, x[j] + 0.5 * h)]
             cell_kink = (american and gaps[0] * gaps[1] < 0.0) or (
@@ -273,6 +276,17 @@ def test_dividends_ahead_and_crossing_equal_the_general_path(is_put: bool) -> No
         np.testing.assert_allclose(out, _dividends_ahead(p, plan, to_expiry=to_expiry),
                                    rtol=1e-15, atol=0)
         assert out[0] == 0.0 and out[-1] > 0.0  # none still to come at expiry, all at valuation
+    # the floor of an American put's far field (waiting for the dividends to wipe the spot
+    # out), against the general path's NumPy rule, from a spot the dividends can wipe out
+    from stopline.solve import _put_after_dividends
+
+    for s_lo in (0.02, 0.3):
+        _kernels.put_after_dividends(tg.tau, 1.5, p.rate, p.div_yield,
+                                     np.asarray(p.dividend_tau), np.asarray(p.dividend_amount),
+                                     s_lo, out)
+        want = _put_after_dividends(p, plan, s_lo)
+        np.testing.assert_allclose(out, want, rtol=1e-14, atol=0)
+        assert want.max() > 0.0
     # the crossing of held and exercise value, on a gap that changes sign once
     v, _, payoff, x0, h = _setup(is_put)
     from stopline.grid import SpaceGrid

@@ -339,7 +339,8 @@ def _slope(ks: list[int], err: list[float]) -> float:
 def test_second_order_with_dividends(case: tuple[str, str, str]) -> None:
     # Source: Crank-Nicolson with Rannacher restarts and graded steps is second order
     # (Rannacher 1984; Forsyth and Vetzal 2002); the exercise kink at an ex-date is cell
-    # averaged (Pooley, Vetzal and Forsyth 2003). Fitted slope in the band 1.7-2.3.
+    # averaged (Pooley, Vetzal and Forsyth 2003). Fitted slope in the band 1.8-2.2
+    # (DEVELOPERS.md; measured 1.93 to 2.00).
     kind, style, model = case
     s, k, t, r, v, t_d, d = 80.0, 82.0, 0.3333, 0.06, 0.30, 0.25, 4.0
     opt = Option(kind, k, t, style)
@@ -352,7 +353,7 @@ def test_second_order_with_dividends(case: tuple[str, str, str]) -> None:
         exact = _value(opt, mkt, 256, 512)
     ks = [8, 16, 32]
     err = [abs(_value(opt, mkt, kk, 2 * kk) - exact) for kk in ks]
-    assert 1.7 <= _slope(ks, err) <= 2.3
+    assert 1.8 <= _slope(ks, err) <= 2.2
 
 
 def test_several_dividends_with_a_yield_standard_meets_its_target() -> None:

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import functools
 import itertools
 import math
 
@@ -30,52 +31,100 @@ def _close(num: float, exact: float, strike: float = 100.0) -> bool:
     return abs(num - exact) <= max(1e-3 * abs(exact), 1e-5 * strike)
 
 
-def test_european_greeks_match_black_scholes_merton_at_standard() -> None:
+@pytest.mark.parametrize("method", ["direct", "fitted"])
+def test_european_greeks_match_black_scholes_merton_at_standard(method: str) -> None:
     # Source: Black-Scholes (1973) / Merton (1973) closed-form Greeks (tests/_bsm.py).
     bad = []
     for kind, s, t, v, (r, q) in EURO_GRID:
-        res = price(Option(kind, 100.0, t, style="european"), Market(s, r, v, q))
+        res = price(Option(kind, 100.0, t, style="european"), Market(s, r, v, q), method=method)
         ex = bsm(kind, s, 100.0, t, r, q, v)
         if abs(res.delta - ex["delta"]) > 5e-5:
             bad.append((kind, s, t, v, r, q, "delta", res.delta, ex["delta"]))
         for name in ("gamma", "theta", "vega", "rho"):
             if not _close(getattr(res, name), ex[name]):
                 bad.append((kind, s, t, v, r, q, name, getattr(res, name), ex[name]))
+        # 1e-5 x strike is a floor for money amounts; gamma is money per money squared, so
+        # its floor in kind is 1e-5 / strike (far stricter than the literal one: measured
+        # within 0.15 of it over a wider spread of 480 contracts)
+        if abs(res.gamma - ex["gamma"]) > max(1e-3 * ex["gamma"], 1e-5 / 100.0):
+            bad.append((kind, s, t, v, r, q, "gamma (scaled floor)", res.gamma, ex["gamma"]))
     assert not bad
 
 
+#: Both solvers of the early-exercise constraint: Crank-Nicolson (the default) and the fitted
+#: boundary with BDF2 steps.
+METHODS = ["direct", "fitted"]
+
+# A spread of typical American contracts: (kind, spot, strike, expiry, rate, yield, vol).
 AMERICAN = [
     ("put", 100.0, 100.0, 1.0, 0.05, 0.0, 0.2),
     ("put", 90.0, 100.0, 0.5, 0.08, 0.02, 0.35),
     ("call", 110.0, 100.0, 1.0, 0.03, 0.07, 0.3),
+    ("put", 110.0, 100.0, 0.25, 0.06, 0.0, 0.25),
+    ("put", 85.0, 100.0, 2.0, 0.04, 0.01, 0.3),
+    ("put", 100.0, 100.0, 0.1, 0.10, 0.0, 0.45),
+    ("call", 95.0, 100.0, 0.5, 0.02, 0.05, 0.2),
+    ("call", 120.0, 100.0, 2.5, 0.05, 0.08, 0.4),
+    ("put", 95.0, 100.0, 3.0, 0.07, 0.03, 0.15),
+    ("put", 120.0, 100.0, 1.5, 0.03, 0.0, 0.6),
 ]
+#: Contracts on which the default Crank-Nicolson sweep misses the 0.2 % (measured at
+#: "standard", against the fine differences below): the call's gamma is 1.7 % and its theta
+#: 4.5 % off, the three-year put's theta 0.22 %; its "fine" gamma is still 0.45 % off. The
+#: fitted solver is within 0.04 % on every Greek of every contract here.
+DIRECT_MISSES = {
+    ("call", 120.0, 100.0, 2.5, 0.05, 0.08, 0.4): "gamma 1.7 %, theta 4.5 % off",
+    ("put", 95.0, 100.0, 3.0, 0.07, 0.03, 0.15): "theta 0.22 % off",
+}
 
 
-@pytest.mark.parametrize("kind,s,k,t,r,q,v", AMERICAN)
-def test_american_greeks_match_fine_differences(
-    kind: str, s: float, k: float, t: float, r: float, q: float, v: float
-) -> None:
-    # common practice: central differences of "fine" prices (error ~1e-8 x strike) in spot,
-    # time, vol and rate; the bumps keep their truncation error below 1e-4 relative.
+@functools.cache
+def _fine_differences(kind: str, s: float, k: float, t: float, r: float, q: float, v: float
+                      ) -> dict[str, float]:
+    # common practice: central differences of "fine" prices (error ~1e-8 x strike, default
+    # solver) in spot, time, vol and rate; the bumps keep their truncation error below 1e-4
+    # relative, and the fine prices' error divided by the bumps stays below 1e-4 relative.
     def p(s_: float = s, t_: float = t, r_: float = r, v_: float = v) -> float:
         return price(Option(kind, k, t_), Market(s_, r_, v_, q), accuracy="fine").price
 
-    res = price(Option(kind, k, t), Market(s, r, v, q))
     ds, dt, dv, dr = 0.01 * s, 1e-3, 1e-3, 1e-3
     up, mid, dn = p(s_=s + ds), p(), p(s_=s - ds)
     d1, d2 = (up - dn) / (2 * ds), (p(s_=s + ds / 2) - p(s_=s - ds / 2)) / ds
-    ref = {
+    return {
         "delta": d2 + (d2 - d1) / 3,  # Richardson on the step: truncation O(ds^4)
         "gamma": (up - 2 * mid + dn) / ds**2,
         "theta": -(p(t_=t + dt) - p(t_=t - dt)) / (2 * dt),
         "vega": (p(v_=v + dv) - p(v_=v - dv)) / (2 * dv),
         "rho": (p(r_=r + dr) - p(r_=r - dr)) / (2 * dr),
     }
+
+
+def _american_params() -> list:
+    out = []
+    for method in METHODS:
+        for case in AMERICAN:
+            marks = []
+            if method == "direct" and case in DIRECT_MISSES:
+                # a known miss of the default solver, kept visible (strict: a fix shows up)
+                marks = [pytest.mark.xfail(strict=True, reason=DIRECT_MISSES[case])]
+            out.append(pytest.param(*case, method, marks=marks))
+    return out
+
+
+@pytest.mark.parametrize("kind,s,k,t,r,q,v,method", _american_params())
+def test_american_greeks_match_fine_differences(
+    kind: str, s: float, k: float, t: float, r: float, q: float, v: float, method: str
+) -> None:
+    # the issue's tolerance: within 0.2 % of central differences of "fine" prices, at the
+    # "standard" preset, every Greek, all from one call of price().
+    ref = _fine_differences(kind, s, k, t, r, q, v)
+    res = price(Option(kind, k, t), Market(s, r, v, q), method=method)
     for name, want in ref.items():
         assert getattr(res, name) == pytest.approx(want, rel=2e-3), name
 
 
-def test_gamma_is_smooth_near_the_strike_at_short_expiry() -> None:
+@pytest.mark.parametrize("method", METHODS)
+def test_gamma_is_smooth_near_the_strike_at_short_expiry(method: str) -> None:
     # Source: Black-Scholes (1973) gamma of a one-week at-the-money put; common practice for
     # ringing: a spot sweep across several grid nodes must give one positive, single-peaked
     # curve whose second differences are those of the exact gamma (a jump where the read-off
@@ -83,7 +132,8 @@ def test_gamma_is_smooth_near_the_strike_at_short_expiry() -> None:
     t, r, v = 7 / 365, 0.05, 0.2
     spots = np.linspace(97.0, 103.0, 121)
     for style in ("european", "american"):
-        g = np.array([price(Option("put", 100.0, t, style=style), Market(s, r, v)).gamma for s in spots])
+        g = np.array([price(Option("put", 100.0, t, style=style), Market(s, r, v), method=method).gamma
+                      for s in spots])
         assert np.all(g > 0)
         peak = int(np.argmax(g))
         assert np.all(np.diff(g[: peak + 1]) > 0) and np.all(np.diff(g[peak:]) < 0)
@@ -94,6 +144,46 @@ def test_gamma_is_smooth_near_the_strike_at_short_expiry() -> None:
             assert np.max(np.abs(d2 - d2_exact)) < 0.02 * np.max(np.abs(d2_exact))
         else:  # early exercise lowers gamma a little near the money but keeps its shape
             assert np.max(np.abs(d2 - d2_exact)) < 0.2 * np.max(np.abs(d2_exact))
+
+
+# Contracts whose exercise boundary lies well inside the grid: (kind, expiry, rate, yield, vol).
+NEAR_BOUNDARY = [
+    ("put", 1.0, 0.05, 0.0, 0.2),
+    ("put", 0.5, 0.08, 0.02, 0.35),
+    ("put", 3.0, 0.07, 0.03, 0.15),
+    ("call", 1.0, 0.03, 0.07, 0.3),
+    ("call", 2.5, 0.05, 0.08, 0.4),
+]
+
+
+@pytest.mark.parametrize("method", [
+    pytest.param("direct", marks=pytest.mark.xfail(strict=True, reason=(
+        "Crank-Nicolson's gamma next to the boundary is 3-62 % off, and negative for the "
+        "2.5-year call (measured); the solver is the lead's to change"))),
+    "fitted",
+])
+def test_gamma_next_to_the_boundary_follows_from_the_equation(method: str) -> None:
+    # Source: on the boundary V = K - S (put), V_S = -1 (smooth pasting) and V_t = 0 (the
+    # value stays the payoff as the boundary moves), so the Black-Scholes equation leaves
+    # 1/2 vol^2 S*^2 gamma = r K - q S* (put) or q S* - r K (call) just inside the hold region
+    # (common practice: derived here from the equation). At a spot 0.1 % inside, gamma's own
+    # slope moves it by up to 0.52 % (measured at "fine" with the fitted solver; it halves
+    # with the distance), so 1 %. Across the first 30 % of the hold region gamma is positive
+    # (the value is convex in spot where the option is held).
+    bad = []
+    for kind, t, r, q, v in NEAR_BOUNDARY:
+        opt, k = Option(kind, 100.0, t), 100.0
+        star = price(opt, Market(k, r, v, q), method=method).boundary.spot[-1]
+        side = 1.0 if kind == "put" else -1.0
+        edge = price(opt, Market(star * (1.0 + 0.001 * side), r, v, q), method=method).gamma
+        want = 2.0 * side * (r * k - q * star) / (v * v * star * star)
+        if abs(edge / want - 1.0) > 0.01:
+            bad.append((kind, t, "edge", edge, want))
+        spots = star * np.exp(side * np.linspace(0.002, 0.3, 40))
+        g = np.array([price(opt, Market(s, r, v, q), method=method).gamma for s in spots])
+        if not np.all(g > 0.0):
+            bad.append((kind, t, "sign", float(g.min())))
+    assert not bad
 
 
 def test_fd_weights_reproduce_polynomial_derivatives() -> None:

@@ -120,3 +120,48 @@ def test_boundary_figure_with_dividends_leaves_gaps_unshaded(tmp_path: Path) -> 
     assert "term structure" in _texts(fig) and "2 cash dividends" in _texts(fig)
     assert not [ln for ln in fig.axes[0].get_lines() if ln.get_label().startswith("limit")]
     assert save_figure(fig, tmp_path / "d.png").read_bytes()[:8] == PNG_MAGIC
+
+
+def _decoded(path: Path) -> np.ndarray:
+    """The PNG decoded to pixels (a real image, not only a file with the right magic)."""
+    import matplotlib.image as mpimg
+
+    return np.asarray(mpimg.imread(path))
+
+
+@pytest.mark.parametrize("method", ["direct", "fitted"])
+def test_boundary_figure_shades_and_labels_regions_strike_and_spot(tmp_path: Path, method: str) -> None:
+    # common practice: what the issue asks the figure to show (regions shaded and labelled,
+    # strike and spot drawn), the caution in smaller type than the axis labels, and a
+    # decodable image of the figure's size.
+    res = price(Option("put", 100.0, 1.0), Market(95.0, 0.05, 0.3, 0.01), method=method)
+    fig = plot_boundary(res)
+    ax = fig.axes[0]
+    labels = ax.get_legend_handles_labels()[1]
+    for want in ("hold region", "exercise region", "critical spot", "strike 100", "spot today 95"):
+        assert want in labels, want
+    shaded = {c.get_label(): c for c in ax.collections}
+    assert "exercise region" in shaded
+    # the exercise region's top edge is the critical spot (a put is exercised below it)
+    verts = np.concatenate([p.vertices for p in shaded["exercise region"].get_paths()])
+    assert verts[:, 1].max() == pytest.approx(np.nanmax(res.boundary.spot))
+    assert any(p.get_label() == "hold region" for p in ax.patches)
+    spot = _line(fig, "spot today 95")
+    assert list(spot.get_ydata()) == [95.0] and list(spot.get_xdata()) == [0.0]
+    caution = [t for t in fig.texts if "model-risk policy" in t.get_text()]
+    assert caution and caution[0].get_fontsize() < ax.xaxis.label.get_fontsize()
+    assert fig._suptitle is not None and "When to exercise early" in fig._suptitle.get_text()
+    pixels = _decoded(save_figure(fig, tmp_path / "b.png"))
+    w, h = fig.get_size_inches() * 150
+    assert pixels.shape[:2] == (round(h), round(w)) and pixels[..., :3].std() > 0.05
+
+
+def test_value_profile_figure_is_a_decodable_image_in_print_sizes(tmp_path: Path) -> None:
+    # common practice: a decodable image; the caution smaller than the axis labels; titled.
+    fig = plot_value_profile(value_profile(Option("put", 100.0, 0.5), Market(95.0, 0.05, 0.3)))
+    caution = [t for t in fig.texts if "model-risk policy" in t.get_text()]
+    assert caution and caution[0].get_fontsize() < fig.axes[2].xaxis.label.get_fontsize()
+    assert "Value across spot" in fig._suptitle.get_text()
+    pixels = _decoded(save_figure(fig, tmp_path / "p.png"))
+    w, h = fig.get_size_inches() * 150
+    assert pixels.shape[:2] == (round(h), round(w)) and pixels[..., :3].std() > 0.05

@@ -144,3 +144,74 @@ def test_published_tables_are_complete() -> None:
     assert sizes == {"Geske-Johnson 1984": 27, "Hull example": 1, "Kim-Ma-Choe 2013": 5,
                      "Broadie-Detemple 1996": 8, "HODIE 2018": 7}
     assert all(t.provenance in ("recalled", "seen") for t in TABLES)
+
+
+def test_full_sample_is_large_and_on_the_typical_domain() -> None:
+    # The issue: a random sample of at least 500 contracts over the typical domain (the full
+    # run's sample; the quick run uses 30 of the same draw).
+    from stopline.validation import _sample
+
+    full, quick = _sample(False), _sample(True)
+    assert len(full) >= 500 and len(quick) < len(full)
+    assert {c[0] for c in full} == {"put", "call"}
+    for _kind, s, t, r, q, v in full:
+        assert 70 <= s <= 130 and 0.05 <= t <= 3 and 0 <= r <= 0.1 and 0 <= q <= 0.08
+        assert 0.1 <= v <= 0.6
+
+
+def test_sample_reports_each_preset_with_errors_and_time(run) -> None:
+    # The issue: RMS and max relative error of each preset, with the time taken, for the
+    # default and the fitted solver, beside trees and both approximations.
+    from stopline.pricing import PRESETS
+
+    for family in ("PDE (stopline, method 'direct')", "PDE (stopline, method 'fitted')"):
+        pts = {p.setting: p for p in run.frontier if p.family == family}
+        assert set(pts) == set(PRESETS)
+        for p in pts.values():
+            assert 0 < p.rms_rel_error <= p.max_rel_error and p.seconds_per_option > 0
+    fams = {p.family for p in run.frontier}
+    assert {"Barone-Adesi-Whaley 1987", "Bjerksund-Stensland 2002"} <= fams
+    sample = next(s for s in run.sections if s.key == "sample")
+    assert "RMS rel. error" in sample.tables[0].columns
+    assert "ms / option" in sample.tables[0].columns
+
+
+def test_error_map_spans_moneyness_and_expiry(run) -> None:
+    em = run.error_map
+    assert em.error.shape == (em.expiry.size, em.moneyness.size)
+    assert em.moneyness.min() < 1.0 < em.moneyness.max() and em.expiry.size >= 3
+    assert (em.error >= 0).all() and em.error.max() > 0
+
+
+def test_curves_carry_the_order_checks_slopes(run) -> None:
+    # The figure's fitted slopes are the values of the "order" checks they illustrate.
+    order_values = {round(c.value, 12) for c in run.checks if "order" in c.name}
+    for curve in run.curves:
+        assert round(curve.slope, 12) in order_values, curve.label
+
+
+def test_approximations_are_checked_as_approximations(run) -> None:
+    # The issue: American PDE vs both approximations "with their known error sizes (they are
+    # approximations: say so)"; and the reference methods against their own published
+    # examples (Hull's CRR steps and Greeks, Barone-Adesi-Whaley and Bjerksund-Stensland
+    # tables, the Roll-Geske-Whaley example).
+    trees = next(s for s in run.sections if s.key == "trees")
+    rel = [c for c in trees.checks if "approximation vs American PDE" in c.name]
+    assert len(rel) == 2
+    assert all("an approximation" in c.source for c in rel)
+    names = " | ".join(c.name for c in run.checks)
+    for prefix in ("reference CRR tree", "reference Barone-Adesi-Whaley",
+                   "reference Bjerksund-Stensland (2002)", "reference Black-Scholes-Merton",
+                   "reference Roll-Geske-Whaley"):
+        assert prefix in names, prefix
+
+
+def test_provenance_words_are_explained(run) -> None:
+    # The issue: each published table says whether it is from memory. Sources say
+    # "recalled" or "seen"; the summary and the report say what the words mean.
+    from stopline.validation_report import PROVENANCE
+
+    assert "'recalled' are from memory" in PROVENANCE and "'seen'" in PROVENANCE
+    assert summary(run)["provenance"] == PROVENANCE
+    text = render_html(run, {})
+    assert "&#x27;recalled&#x27; are from memory" in text

@@ -71,6 +71,7 @@ __all__ = [
     "PAIR_OUT",
     "dividend_jump_tangents",
     "dividends_ahead",
+    "put_after_dividends",
     "crossing",
     "solve_cash_dividends",
     "price_pair_cash_dividends",
@@ -848,17 +849,24 @@ def thomas_repeat(rhs0, a, b, c, n_solves, out):
 
 
 @njit(cache=True)
-def _value_after(v, x, x0, h, d, df_r, df_q, is_put, american):
+def _value_after(v, x, x0, h, d, df_r, df_q, ahead, is_put, american):
     """Value / strike after the ex-date at ``ln(max(e^x - d, 0))``, read off the nodes ``v``.
 
     A four-point Lagrange cubic in ``x`` limited to the range of the two bracketing nodes
     (so a monotone value stays monotone and non-negative); below the first node, the
-    far-field value of :func:`far_value` at the dropped spot.
+    far-field value of :func:`far_value` at the dropped spot ``s``, whose discounted forward
+    ``s df_q`` the dividends still ahead (``ahead``, discounted like it) lower, but not below
+    zero: a put there is worth at most ``df_r``.
     """
     n = v.shape[0]
     s = math.exp(x) - d
     if s <= math.exp(x0):
-        return far_value(s if s > 0.0 else 0.0, df_r, df_q, is_put, american)
+        if s < 0.0:
+            s = 0.0
+        carry = s * df_q
+        if ahead < carry:
+            carry = ahead
+        return far_value(s, df_r + carry, df_q, is_put, american)
     y = (math.log(s) - x0) / h
     i = int(math.floor(y))
     if i > n - 2:
@@ -896,14 +904,14 @@ def _exercise_value(x, pv, is_put):
 
 
 @njit(cache=True)
-def _held_or_exercised(v, x, x0, h, d, pv, df_r, df_q, is_put):
-    w = _value_after(v, x, x0, h, d, df_r, df_q, is_put, True)
+def _held_or_exercised(v, x, x0, h, d, pv, df_r, df_q, ahead, is_put):
+    w = _value_after(v, x, x0, h, d, df_r, df_q, ahead, is_put, True)
     e = _exercise_value(x, pv, is_put)
     return w if w > e else e
 
 
 @njit(cache=True)
-def dividend_jump(v, payoff, x0, h, d, pv, df_r, df_q, is_put, american, out):
+def dividend_jump(v, payoff, x0, h, d, pv, df_r, df_q, ahead, is_put, american, out):
     """Values just before an ex-dividend date from those just after.
 
     ``out_j = v(ln(max(e^{x_j} - d, 0)))`` (the spot drops by ``d``), and for an American
@@ -926,6 +934,9 @@ def dividend_jump(v, payoff, x0, h, d, pv, df_r, df_q, is_put, american, out):
         Shift of the spot in the exercise value / strike, >= 0.
     df_r, df_q : float
         Discount factors for rate and yield from expiry to the ex-date (far-field values).
+    ahead : float
+        Dividends / strike after this one, discounted at the rate to the ex-date and at the
+        yield from expiry to their ex-dates (lower the far field's forward; 0 if none).
     is_put, american : bool
         Contract flags.
     out : ndarray, shape (n,)
@@ -948,18 +959,18 @@ def dividend_jump(v, payoff, x0, h, d, pv, df_r, df_q, is_put, american, out):
         xj = x0 + j * h
         xl = xj - half
         xr = xj + half
-        w = _value_after(v, xj, x0, h, d, df_r, df_q, is_put, american)
+        w = _value_after(v, xj, x0, h, d, df_r, df_q, ahead, is_put, american)
         e = payoff[j] if american else 0.0
         xk = math.nan
         if american:
-            gl = _value_after(v, xl, x0, h, d, df_r, df_q, is_put, True) - _exercise_value(xl, pv, is_put)
-            gr = _value_after(v, xr, x0, h, d, df_r, df_q, is_put, True) - _exercise_value(xr, pv, is_put)
+            gl = _value_after(v, xl, x0, h, d, df_r, df_q, ahead, is_put, True) - _exercise_value(xl, pv, is_put)
+            gr = _value_after(v, xr, x0, h, d, df_r, df_q, ahead, is_put, True) - _exercise_value(xr, pv, is_put)
             if gl * gr < 0.0:
                 a = xl
                 b = xr
                 for _ in range(40):
                     m = 0.5 * (a + b)
-                    gm = _value_after(v, m, x0, h, d, df_r, df_q, is_put, True) - _exercise_value(
+                    gm = _value_after(v, m, x0, h, d, df_r, df_q, ahead, is_put, True) - _exercise_value(
                         m, pv, is_put
                     )
                     if (gm < 0.0) == (gl < 0.0):
@@ -978,21 +989,21 @@ def dividend_jump(v, payoff, x0, h, d, pv, df_r, df_q, is_put, american, out):
             ln = hi - lo
             for z in (c - g * ln, c + g * ln):
                 if american:
-                    total += 0.5 * ln * _held_or_exercised(v, z, x0, h, d, pv, df_r, df_q, is_put)
+                    total += 0.5 * ln * _held_or_exercised(v, z, x0, h, d, pv, df_r, df_q, ahead, is_put)
                 else:
-                    total += 0.5 * ln * _value_after(v, z, x0, h, d, df_r, df_q, is_put, False)
+                    total += 0.5 * ln * _value_after(v, z, x0, h, d, df_r, df_q, ahead, is_put, False)
         out[j] = total / h
 
 
 @njit(cache=True)
-def value_after_drop(v, x0, h, d, df_r, df_q, is_put, american, out):
+def value_after_drop(v, x0, h, d, df_r, df_q, ahead, is_put, american, out):
     """``out_j = v(ln(max(e^{x_j} - d, 0)))``: the held value just before an ex-date.
 
     As :func:`dividend_jump` without the exercise floor and without cell averaging; the
     American flag only sets the far-field value below the grid.
     """
     for j in range(v.shape[0]):
-        out[j] = _value_after(v, x0 + j * h, x0, h, d, df_r, df_q, is_put, american)
+        out[j] = _value_after(v, x0 + j * h, x0, h, d, df_r, df_q, ahead, is_put, american)
 
 
 @njit(cache=True, fastmath={"contract"})
@@ -1476,7 +1487,7 @@ def price_pair(
 
 
 @njit(cache=True)
-def _value_after_weights(v, x, x0, h, d, df_r, df_q, is_put, american):
+def _value_after_weights(v, x, x0, h, d, df_r, df_q, ahead, is_put, american):
     """:func:`_value_after` and how it depends on the nodes: ``(value, j0, c0, c1, c2, c3)``
     with ``d value = sum_i c_i dv[j0 + i]`` for a change ``dv`` of the values that moves
     neither ``x`` nor the far field (``j0 = 0`` and all ``c_i = 0`` below the first node,
@@ -1486,7 +1497,12 @@ def _value_after_weights(v, x, x0, h, d, df_r, df_q, is_put, american):
     n = v.shape[0]
     s = math.exp(x) - d
     if s <= math.exp(x0):
-        return far_value(s if s > 0.0 else 0.0, df_r, df_q, is_put, american), 0, 0.0, 0.0, 0.0, 0.0
+        if s < 0.0:
+            s = 0.0
+        carry = s * df_q
+        if ahead < carry:
+            carry = ahead
+        return far_value(s, df_r + carry, df_q, is_put, american), 0, 0.0, 0.0, 0.0, 0.0
     y = (math.log(s) - x0) / h
     i = int(math.floor(y))
     if i > n - 2:
@@ -1515,7 +1531,7 @@ def _value_after_weights(v, x, x0, h, d, df_r, df_q, is_put, american):
 
 
 @njit(cache=True)
-def _value_after_slope(v, x, x0, h, d, df_r, df_q, is_put, american):
+def _value_after_slope(v, x, x0, h, d, df_r, df_q, ahead, is_put, american):
     """``d/dx`` of :func:`_value_after` at ``x`` (the same branches: the far field below the
     first node, zero where the limiter clamps, else the cubic's slope)."""
     n = v.shape[0]
@@ -1524,13 +1540,15 @@ def _value_after_slope(v, x, x0, h, d, df_r, df_q, is_put, american):
     if s <= math.exp(x0):
         if s <= 0.0:
             return 0.0
-        fwd = df_r - s * df_q if is_put else s * df_q - df_r
+        capped = ahead < s * df_q  # the carry is the dividends ahead, not s df_q
+        carry = ahead if capped else s * df_q
+        fwd = df_r + carry - s * df_q if is_put else s * df_q - (df_r + carry)
         far = fwd if fwd > 0.0 else 0.0
         e = 1.0 - s if is_put else s - 1.0
         sgn = -1.0 if is_put else 1.0
         if american and e > far:
             return sgn * ex
-        return sgn * df_q * ex if fwd > 0.0 else 0.0
+        return sgn * df_q * ex if (fwd > 0.0 and capped) else 0.0
     y = (math.log(s) - x0) / h
     i = int(math.floor(y))
     if i > n - 2:
@@ -1568,8 +1586,8 @@ def _exercise_slope(x, pv, is_put):
 
 
 @njit(cache=True)
-def dividend_jump_tangents(v, tan, payoff, x0, h, d, pv, df_r, df_q, is_put, american, out,
-                           tan_out):
+def dividend_jump_tangents(v, tan, payoff, x0, h, d, pv, df_r, df_q, ahead, is_put, american,
+                           out, tan_out):
     """:func:`dividend_jump` with the derivatives of its values (same arguments, plus ``tan``
     and ``tan_out``).
 
@@ -1594,18 +1612,18 @@ def dividend_jump_tangents(v, tan, payoff, x0, h, d, pv, df_r, df_q, is_put, ame
         xj = x0 + j * h
         xl = xj - half
         xr = xj + half
-        w, j0, c0, c1, c2, c3 = _value_after_weights(v, xj, x0, h, d, df_r, df_q, is_put, american)
+        w, j0, c0, c1, c2, c3 = _value_after_weights(v, xj, x0, h, d, df_r, df_q, ahead, is_put, american)
         e = payoff[j] if american else 0.0
         xk = math.nan
         if american:
-            gl = _value_after(v, xl, x0, h, d, df_r, df_q, is_put, True) - _exercise_value(xl, pv, is_put)
-            gr = _value_after(v, xr, x0, h, d, df_r, df_q, is_put, True) - _exercise_value(xr, pv, is_put)
+            gl = _value_after(v, xl, x0, h, d, df_r, df_q, ahead, is_put, True) - _exercise_value(xl, pv, is_put)
+            gr = _value_after(v, xr, x0, h, d, df_r, df_q, ahead, is_put, True) - _exercise_value(xr, pv, is_put)
             if gl * gr < 0.0:
                 a = xl
                 b = xr
                 for _ in range(40):
                     m = 0.5 * (a + b)
-                    gm = _value_after(v, m, x0, h, d, df_r, df_q, is_put, True) - _exercise_value(
+                    gm = _value_after(v, m, x0, h, d, df_r, df_q, ahead, is_put, True) - _exercise_value(
                         m, pv, is_put
                     )
                     if (gm < 0.0) == (gl < 0.0):
@@ -1635,13 +1653,13 @@ def dividend_jump_tangents(v, tan, payoff, x0, h, d, pv, df_r, df_q, is_put, ame
             ln = hi - lo
             sg = -1.0
             for z in (c - g * ln, c + g * ln):
-                wz, i0, b0, b1, b2, b3 = _value_after_weights(v, z, x0, h, d, df_r, df_q, is_put,
-                                                             american)
+                wz, i0, b0, b1, b2, b3 = _value_after_weights(v, z, x0, h, d, df_r, df_q, ahead,
+                                                             is_put, american)
                 ez = _exercise_value(z, pv, is_put) if american else 0.0
                 held_z = not (american and not wz > ez)
                 fz = wz if held_z else ez
                 if american and n_par > 0:
-                    slope = (_value_after_slope(v, z, x0, h, d, df_r, df_q, is_put, True)
+                    slope = (_value_after_slope(v, z, x0, h, d, df_r, df_q, ahead, is_put, True)
                              if held_z else _exercise_slope(z, pv, is_put))
                     # d ln / d x_k = -side, d z / d x_k = 1/2 + side sg g (left: 1/2 - sg g...)
                     dq_dk += -side * 0.5 * fz + 0.5 * ln * slope * (0.5 - side * sg * g)
@@ -1660,8 +1678,8 @@ def dividend_jump_tangents(v, tan, payoff, x0, h, d, pv, df_r, df_q, is_put, ame
         k0 = 0
         e0 = e1 = e2 = e3 = dg = 0.0
         if moves:
-            _, k0, e0, e1, e2, e3 = _value_after_weights(v, xk, x0, h, d, df_r, df_q, is_put, True)
-            dg = (_value_after_slope(v, xk, x0, h, d, df_r, df_q, is_put, True)
+            _, k0, e0, e1, e2, e3 = _value_after_weights(v, xk, x0, h, d, df_r, df_q, ahead, is_put, True)
+            dg = (_value_after_slope(v, xk, x0, h, d, df_r, df_q, ahead, is_put, True)
                   - _exercise_slope(xk, pv, is_put))
             moves = dg != 0.0
         for p in range(n_par):
@@ -1693,6 +1711,37 @@ def dividends_ahead(tau, expiry, rate, div_yield, div_tau, div_amt, to_expiry, o
                 if to_expiry:
                     grow = grow + div_yield * (expiry - t_ex)
                 out[k] += div_amt[i] * math.exp(-grow)
+
+
+@njit(cache=True, inline="always")
+def put_after_dividends(tau, expiry, rate, div_yield, div_tau, div_amt, s, out):
+    """Per step: the best zero-vol value / strike of a put exercised just after one of the
+    ex-dates still to come, from spot / strike ``s`` at the step's end (spot model, flat
+    data), into ``out``: the rule of :func:`stopline.solve._put_after_dividends`."""
+    order = np.argsort(-div_tau, kind="mergesort")  # calendar order
+    for k in range(tau.shape[0]):
+        spot = s
+        t_cur = expiry - tau[k]
+        if t_cur < 0.0:
+            t_cur = 0.0
+        t_now = t_cur
+        best = 0.0
+        for ii in range(order.shape[0]):
+            i = order[ii]
+            t_d = div_tau[i]
+            if not tau[k] > t_d * (1.0 + 1e-12) + 1e-14:
+                continue
+            t_ex = expiry - t_d
+            grow = rate * (t_ex - t_cur) - div_yield * (t_ex - t_cur)
+            spot = spot * math.exp(grow) - div_amt[i]
+            if not spot > 0.0:
+                spot = 0.0
+            t_cur = t_ex
+            left = 1.0 - spot
+            value = math.exp(-(rate * (t_ex - t_now))) * (left if left > 0.0 else 0.0)
+            if value > best:
+                best = value
+        out[k] = best
 
 
 @njit(cache=True, inline="always")
@@ -1810,9 +1859,15 @@ def solve_cash_dividends(is_put, american, escrowed, expiry, rate, div_yield, vo
     m = tau.shape[0]
     plan = np.empty((7, m))
     flat_plan(tau, h_coef, rate, div_yield, vol, False, plan)
-    ahead = np.empty(m)
-    dividends_ahead(tau, expiry, rate, div_yield, div_tau, div_amt, not escrowed, ahead)
-    if not escrowed:
+    ahead = np.zeros(m)  # spot model: the dividends still to come, as the far field sees them
+    pv_after = np.zeros(m)  # escrowed model: their present value
+    df_plain = np.empty(m)  # the discount factor of the far field below the grid at a jump
+    for k in range(m):
+        df_plain[k] = plan[3, k]
+    if escrowed:
+        dividends_ahead(tau, expiry, rate, div_yield, div_tau, div_amt, False, pv_after)
+    else:
+        dividends_ahead(tau, expiry, rate, div_yield, div_tau, div_amt, True, ahead)
         lim = math.exp(x_min)
         for k in range(m):
             a = ahead[k]
@@ -1821,6 +1876,17 @@ def solve_cash_dividends(is_put, american, escrowed, expiry, rate, div_yield, vo
                 if cap < a:
                     a = cap
             plan[3, k] = plan[3, k] + a
+        if is_put and american:
+            # waiting for the dividends ahead to take the spot to zero (see
+            # stopline.solve._solve_with_dividends): a floor under the far field
+            wait = np.empty(m)
+            put_after_dividends(tau, expiry, rate, div_yield, div_tau, div_amt, lim, wait)
+            for k in range(m):
+                floor = wait[k] + lim * plan[4, k]
+                if floor > plan[3, k]:
+                    plan[3, k] = floor
+                if ahead[k] >= lim * plan[4, k] and wait[k] > df_plain[k]:
+                    df_plain[k] = wait[k]
     ex = node_exp(x_min, h, n)
     payoff_nodes(ex, is_put, 1.0, strike_index, v)
     for j in range(n):
@@ -1845,10 +1911,10 @@ def solve_cash_dividends(is_put, american, escrowed, expiry, rate, div_yield, vo
             for k in range(start, last + 1):
                 # the nodes stand for S* = S - PV: the march's spot is e^x + PV_t(D)
                 for j in range(n):
-                    ex_k[j] = ex[j] + ahead[k]
+                    ex_k[j] = ex[j] + pv_after[k]
                 _march_piece(v, ex_k, x_min, h, plan, tau, dt, theta, k, k + 1, is_put,
                              american, vol, tan, bnd, b, fitted)
-                b_pv[b] = ahead[k]
+                b_pv[b] = pv_after[k]
                 b += 1
         else:
             _march_piece(v, ex, x_min, h, plan, tau, dt, theta, start, last + 1, is_put,
@@ -1857,7 +1923,7 @@ def solve_cash_dividends(is_put, american, escrowed, expiry, rate, div_yield, vo
         if e < n_ev and last == ev_idx[e]:
             d = ev_amt[e]
             if escrowed:
-                pv_before = ahead[last] + d
+                pv_before = pv_after[last] + d
                 _shifted_exercise(ex, pv_before, is_put, exv)
             else:
                 pv_before = 0.0
@@ -1865,10 +1931,10 @@ def solve_cash_dividends(is_put, american, escrowed, expiry, rate, div_yield, vo
                     exv[j] = payoff[j]
             drop = 0.0 if escrowed else d
             if american:
-                value_after_drop(v, x_min, h, drop, plan[3, last], plan[4, last], is_put, True,
-                                 held)
-            dividend_jump_tangents(v, tan, exv, x_min, h, drop, pv_before, plan[3, last],
-                                   plan[4, last], is_put, american, work, tan_work)
+                value_after_drop(v, x_min, h, drop, df_plain[last], plan[4, last], ahead[last],
+                                 is_put, True, held)
+            dividend_jump_tangents(v, tan, exv, x_min, h, drop, pv_before, df_plain[last],
+                                   plan[4, last], ahead[last], is_put, american, work, tan_work)
             if american:
                 for j in range(n):
                     held[j] -= exv[j]

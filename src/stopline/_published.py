@@ -12,7 +12,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 __all__ = ["PublishedTable", "TABLES", "DOUBTFUL", "HULL_CRR_STEPS", "BAW_TABLE",
-           "PERPETUAL_PUTS", "RGW_EXAMPLE", "NSTT_BOUNDARY"]
+           "BJS_TABLE", "HULL_GREEKS", "PERPETUAL_PUTS", "RGW_EXAMPLE", "NSTT_BOUNDARY"]
 
 
 @dataclass(frozen=True)
@@ -134,6 +134,30 @@ BAW_TABLE: tuple[tuple[float, float, float, float], ...] = tuple(
     )
     for vol, vals in rows.items()
     for s, v in zip((90.0, 100.0, 110.0), vals, strict=True)
+)
+
+#: Bjerksund & Stensland (2002) approximation values, example table in Haug, The Complete
+#: Guide to Option Pricing Formulas (recalled, printed to 4 decimals, +-1e-4): the calls of
+#: :data:`BAW_TABLE`, ``(expiry, vol, spot, value)``.
+BJS_TABLE: tuple[tuple[float, float, float, float], ...] = tuple(
+    (t, vol, s, v)
+    for t, rows in (
+        (0.1, {0.15: (0.0205, 1.8757, 10.0000), 0.25: (0.3151, 3.1256, 10.3725),
+               0.35: (0.9479, 4.3746, 11.1578)}),
+        (0.5, {0.15: (0.8099, 4.0628, 10.7898), 0.25: (2.7180, 6.7661, 12.9814),
+               0.35: (4.9665, 9.4608, 15.5137)}),
+    )
+    for vol, vals in rows.items()
+    for s, v in zip((90.0, 100.0, 110.0), vals, strict=True)
+)
+
+#: Black-Scholes-Merton Greeks, worked example in Hull, Options, Futures, and Other
+#: Derivatives, Greek letters chapter (recalled): call, S = 49, K = 50, r = 0.05, vol 0.2,
+#: T = 0.3846 (20 weeks), no dividends; ``(greek, printed value, decimals printed)`` with
+#: theta per year, vega per unit of vol and rho per unit of the rate.
+HULL_GREEKS: tuple[tuple[str, float, int], ...] = (
+    ("price", 2.40, 2), ("delta", 0.522, 3), ("gamma", 0.066, 3), ("theta", -4.31, 2),
+    ("vega", 12.1, 1), ("rho", 8.91, 2),
 )
 
 #: Perpetual American puts (Merton 1973), K = 100: ``(rate, div_yield, vol, S*, V(100))``.

@@ -31,6 +31,7 @@ from pathlib import Path
 
 from .contract import Option
 from .daycount import DEFAULT_DAY_COUNT, parse_date, year_fraction
+from .dividends import dividend_schedule
 from .errors import InputError, StoplineError
 from .implied import ImpliedVolError, implied_vol
 from .market import VOL_RANGE, Market
@@ -60,7 +61,7 @@ __all__ = [
 ]
 
 REQUIRED_COLUMNS = ("id", "kind", "style", "spot", "strike", "expiry", "rate", "vol", "quote")
-OPTIONAL_COLUMNS = ("div_yield", "dividends", "valuation_date", "quote_vol")
+OPTIONAL_COLUMNS = ("div_yield", "dividends", "dividend_model", "valuation_date", "quote_vol")
 #: Columns added to every input row, in this order.
 OUTPUT_COLUMNS = (
     "model_price", "difference", "implied_vol", "vol_difference", "tolerance", "status", "note",
@@ -209,8 +210,7 @@ def parse_cash_dividends(text: str) -> tuple[CashDividend, ...]:
     """Read ``"2027-03-15:0.42;2027-06-15:0.42"`` into cash dividends (empty text: none).
 
     Each ``;``-separated entry is ``WHEN:AMOUNT``: an ISO ex-date or years from valuation,
-    and a cash amount per share > 0 (the format of :class:`Market`'s dividends on branch
-    ``dividends``).
+    and a cash amount per share > 0 (the text :func:`stopline.parse_dividends` reads).
 
     Raises
     ------
@@ -283,6 +283,7 @@ def parse_quote(raw: Mapping[str, object]) -> QuoteLine:
     market = Market(
         _number(raw, "spot"), _number(raw, "rate"), _number(raw, "vol"),
         div_yield=div_yield, valuation_date=valuation,
+        dividend_model=_text(raw, "dividend_model") or "spot",
     )
     option.time_to_expiry(market.valuation_date)  # date checks: needs a valuation date, order
     quote = _number(raw, "quote")
@@ -587,10 +588,12 @@ def check_row(raw: Mapping[str, object], settings: CheckSettings | None = None) 
         tolerance=allowed, status="ok", note="", quote=q, vega=vega, moneyness=moneyness,
         time_to_expiry=t,
     )
+    # dividends left out of the pricing (ex-date after expiry, or on the valuation date)
+    ignored = dividend_schedule(line.market.dividends, t, line.market.valuation_date).warnings
     if abs(diff) <= allowed:
-        return base
+        return replace(base, note="; ".join(ignored))
     note, causes = _diagnose(line, allowed, iv, iv_problem, settings)
-    return replace(base, status="mismatch", note=note, causes=causes)
+    return replace(base, status="mismatch", note="; ".join((note, *ignored)), causes=causes)
 
 
 def check_rows(

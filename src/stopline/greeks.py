@@ -1,4 +1,4 @@
-"""Greeks from grid solutions: read-off at the spot, theta from the PDE, vega and rho by bumps.
+"""Greeks from grid solutions: read-off at the spot, theta from the PDE, vega and rho.
 
 How each number in :class:`~stopline.pricing.Result` is computed:
 
@@ -16,11 +16,20 @@ How each number in :class:`~stopline.pricing.Result` is computed:
   option is held, ``V_t = -(1/2 s^2 S^2 gamma + (r - q) S delta - r V)``; where it is
   exercised, zero. It is as accurate as delta and gamma; a difference quotient over the last
   (longest, on a graded grid) time step would be first order.
-- **vega, rho** (American, or with dividends or term structures) by central differences
+- **vega, rho** (American with flat inputs and no cash dividends, methods ``"direct"`` and
+  ``"fitted"``): the exact derivatives of the discrete solution with respect to the
+  volatility and the rate, marched alongside it on the same two grids (tangent-linear: each
+  step's pivots and exercised nodes are reused, no bump size enters; see
+  :func:`stopline.solve.solve_with_tangents` and :func:`stopline._kernels.price_pair`), read at
+  the spot by the same read-off as the value and Richardson-extrapolated like the price. No
+  extra solve: the tangents ride along the two solves of the price.
+- **vega, rho** (American with cash dividends, term structures or projected SOR, and
+  European options with dividends or term structures) by central differences
   ``(V(p + dp) - V(p - dp)) / (2 dp)`` of prices re-solved with the market's volatility or
   rate shifted in parallel (:data:`VOL_BUMP`, :data:`RATE_BUMP`; a curve moves as a whole,
   see :func:`bumped_market`), on grids built once from the unbumped inputs and reused, so
-  that the bump moves no node. See :func:`central_difference`.
+  that the bump moves no node: one pair of shared-grid solves per bumped input and
+  direction. See :func:`central_difference`.
 - **vega, rho** (European, flat inputs) from the solve itself: differentiating
   ``V = e^{-rT} E[payoff(S_T)]`` gives ``vega = vol T S^2 gamma`` and
   ``rho = T (S delta - V)`` exactly (:func:`european_vega_rho`); no re-solve is needed.

@@ -12,9 +12,12 @@ where the result carries a note that the vol is poorly determined.
 
 The search is a safeguarded secant method inside the bracket ``[0.001, 5]``:
 
-1. a first guess from the European (Black-Scholes-Merton) inversion of the quote, or from
-   the Brenner-Subrahmanyam approximation when no European vol fits (an American put quoted
-   above the discounted strike, say);
+1. a first guess from the European (Black-Scholes-Merton) inversion of the quote; when no
+   European vol fits because the quote is at or above the European upper bound (an American
+   put quoted above the discounted strike, say), only a large vol explains it and the guess
+   is 2, the top of the first-guess range (the Brenner-Subrahmanyam approximation, which
+   measures the time value from the intrinsic value, would start there near the bottom and
+   widen by doubling: 4 more prices); otherwise Brenner-Subrahmanyam;
 2. a quasi-Newton step that uses the European price as a model of the American one:
    ``v1 = BSM^{-1}(quote - (P(v0) - BSM(v0)))``, exact when the early-exercise premium does
    not depend on the vol;
@@ -579,10 +582,13 @@ class _EuropeanModel:
         return float(brentq(lambda v: self.price(v) - target, a, b, xtol=1e-12, rtol=1e-12))
 
     def initial_guess(self, quote: float) -> float:
-        """European inversion of the quote, else Brenner-Subrahmanyam on its time value."""
+        """European inversion of the quote; 2 for a quote at or above the European upper
+        bound (only a large vol explains it); else Brenner-Subrahmanyam on its time value."""
         v = self.invert(quote)
         if v is not None:
             return v
+        if quote >= self.high:
+            return 2.0
         time_value = max(quote - max(self.low, abs(self.s - self.k)), 1e-12 * self.k)
         v = math.sqrt(2.0 * math.pi / self.t) * time_value / math.sqrt(self.s * self.k)
         return min(max(v, 0.05), 2.0)

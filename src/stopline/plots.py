@@ -42,12 +42,27 @@ def _describe(result_like) -> tuple[str, str]:  # noqa: ANN001 - Result or Value
         f"spot {mkt.spot:g}   rate {_pct(mkt.rate, 2)}   dividend yield {_pct(mkt.div_yield, 2)}   "
         f"vol {_pct(mkt.vol, 1)}"
     )
-    divs = getattr(mkt, "dividends", ())
-    if divs:
-        market += f"   {len(divs)} cash dividend{'s' if len(divs) > 1 else ''}"
+    times, ignored = _ex_dates(result_like)
+    if times.size or ignored:
+        n = times.size
+        market += f"   {n} cash dividend{'' if n == 1 else 's'}"
+        if ignored:
+            market += f" ({ignored} ignored: see warnings)"
     if mkt.valuation_date is not None:
         market += f"   valued {mkt.valuation_date.isoformat()}"
     return head, market
+
+
+def _ex_dates(result_like) -> tuple[np.ndarray, int]:  # noqa: ANN001 - Result or ValueProfile
+    """Ex-dates within the option's life (years from valuation) and how many were ignored."""
+    from .dividends import dividend_schedule
+
+    mkt = result_like.market
+    divs = getattr(mkt, "dividends", ())
+    if not divs:
+        return np.empty(0), 0
+    sched = dividend_schedule(divs, result_like.time_to_expiry, mkt.valuation_date)
+    return np.asarray(sched.times), len(sched.warnings)
 
 
 def _pct(value: object, digits: int) -> str:
@@ -123,6 +138,16 @@ def plot_boundary(result: Result) -> Figure:
         ax.fill_between(xs, ex_lo, ex_hi, where=finite, interpolate=False, color=_EXERCISE,
                         alpha=0.22, lw=0, label="exercise region")
         ax.plot(xs, spot, color=_INK, lw=2.0, label="critical spot")
+        # a critical spot with no neighbour (a call exercised only just before an ex-date)
+        # draws no line segment: mark it, with its exercise region as a bar
+        before = np.concatenate(([False], finite[:-1]))
+        after = np.concatenate((finite[1:], [False]))
+        alone = finite & ~before & ~after
+        if alone.any():
+            ax.vlines(xs[alone], spot[alone], y_lo if opt.is_put else y_hi, color=_EXERCISE,
+                      lw=3.0, alpha=0.55)
+            ax.plot(xs[alone], spot[alone], ls="none", marker="o", ms=6, color=_INK,
+                    label="critical spot just before an ex-date", zorder=4)
         mid = xf[len(xf) // 2]
         y_mid = yf[len(yf) // 2]
         ax.text(mid, 0.5 * (y_lo + y_mid) if opt.is_put else 0.5 * (y_hi + y_mid),
@@ -146,6 +171,11 @@ def plot_boundary(result: Result) -> Figure:
         ax.text(0.5 * (x0 + x_end), 0.5 * (y_lo + y_hi),
                 "HOLD throughout\n(early exercise is never optimal here)",
                 ha="center", va="center", fontsize=10, color="#2f5d84", weight="bold")
+    ex_times, _ = _ex_dates(result)
+    for i, t_d in enumerate(ex_times):
+        x_d = x0 + 365.0 * t_d if dates is not None else t_d
+        ax.axvline(x_d, color=_ACCENT, lw=1.0, ls=":",
+                   label="ex-dividend date (the boundary jumps)" if i == 0 else None)
     ax.axhline(k, color=_MUTED, lw=1.0, ls="--", label=f"strike {k:g}")
     ax.plot([x0], [s0], marker="D", ms=7, color=_ACCENT, ls="none", label=f"spot today {s0:g}",
             clip_on=False, zorder=5)

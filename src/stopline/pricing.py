@@ -216,13 +216,15 @@ class Result:
         value as time passes), from the Black-Scholes equation at valuation.
     vega : float
         dV/dvol per unit of volatility (divide by 100 for one vol point), for a parallel shift
-        of a vol curve. American with flat inputs and the direct sweep, and any option with
-        flat inputs and cash dividends of the spot model (preset grids, direct sweep): the
-        exact derivative of the discrete solution, marched alongside it (tangent-linear, no
-        bump; through each dividend jump by the same interpolation), read at the spot and
-        extrapolated like the price. Other cases (curves, escrowed dividends, PSOR): a
-        central difference of re-solved prices with the vol bumped by 1 % of itself.
-        European with flat inputs and no cash dividends: ``vol T S^2 gamma``.
+        of a vol curve. American with flat inputs, no cash dividends and the direct or fitted
+        sweep, and any option with flat inputs and cash dividends (either model; a preset, the
+        direct sweep): the exact derivative of the discrete solution, marched alongside it
+        on the same two grids (tangent-linear, no bump, no extra solve; through each dividend
+        jump by the same interpolation), read at the spot and extrapolated like the price.
+        Other cases (projected SOR, curves, an expert grid with dividends): a central
+        difference of prices re-solved on the same two grids with the vol bumped up and down
+        by 1 % of itself. European with flat inputs and no cash dividends: ``vol T S^2
+        gamma`` (an identity of the model). See :mod:`stopline.greeks`.
     rho : float
         dV/drate per unit of rate (divide by 10,000 for one basis point), for a parallel shift
         of a rate curve; computed like vega (tangent-linear; or the rate bumped by 1e-3; or,
@@ -1108,7 +1110,10 @@ def _price_pair_dividends(
                   name)
 
 
-def _read(sol: GridSolution, problem: PDEProblem, strike: float) -> GridReadout:
+def _read(
+    sol: GridSolution, problem: PDEProblem, strike: float, x_spot: float | None = None
+) -> GridReadout:
+    """Value, delta and gamma read at the spot (or at ``x_spot``, in the nodes' frame)."""
     x_boundary = float(sol.report.boundary_x[-1]) if problem.american else math.nan
     pv = problem.escrow_pv if problem.escrowed else 0.0
     if pv and math.isfinite(x_boundary):
@@ -1116,7 +1121,8 @@ def _read(sol: GridSolution, problem: PDEProblem, strike: float) -> GridReadout:
         s_star = math.exp(x_boundary) - pv
         x_boundary = math.log(s_star) if s_star > 0.0 else -math.inf
     return read_at_spot(
-        sol.values, sol.payoff, sol.x_min, sol.space.h, problem.x_spot, strike,
+        sol.values, sol.payoff, sol.x_min, sol.space.h,
+        problem.x_spot if x_spot is None else x_spot, strike,
         problem.american, x_boundary, problem.is_put, pv=pv,
     )
 

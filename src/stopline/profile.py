@@ -2,11 +2,15 @@
 
 :func:`stopline.pricing.price` answers at one spot. For a picture of the option across spot
 (:func:`stopline.plots.plot_value_profile`) the same two grids are solved and their values
-are read at the nodes they share (every node of the coarser grid), Richardson-extrapolated
-node by node like the price. Delta and gamma at each node come from fourth-order central
-differences in ``x = ln(S / K)`` on each grid (Fornberg 1988 weights), extrapolated alike;
-on nodes in the exercise region (beyond the critical spot located on the finer grid, as
-:func:`~stopline.pricing.price` decides) they are the payoff's (+-1 and 0).
+are read at the nodes they share (every node of the coarser grid) by the rule
+:func:`~stopline.pricing.price` reads its answer at the spot with: the quintic read-off of
+:func:`stopline.greeks.read_at_spot` on each grid (Fornberg 1988 weights in ``x = ln(S / K)``;
+next to the exercise boundary the stencil stays on held nodes, off the kink in the second
+derivative), Richardson-extrapolated node by node like the price. On nodes in the exercise
+region (beyond the critical spot located on the finer grid, as ``price`` decides) delta and
+gamma are the payoff's (+-1 and 0). So each point of the profile is what ``price`` answers
+for that spot on these grids, and gamma has no spike at the boundary (a centred stencil
+across the kink would put one there).
 
 References
 ----------
@@ -24,11 +28,17 @@ from ._types import FloatArray
 from .contract import Option
 from .errors import InputError
 from .exercise import ExerciseMethod, get_method
-from .greeks import fd_weights
 from .market import Market
-from .solve import GridSolution, problem_from_market, solve
+from .solve import problem_from_market, solve
 
 __all__ = ["ValueProfile", "value_profile"]
+
+
+@dataclass(frozen=True)
+class _AtSpot:
+    """The one field of a market that the pair's extrapolation reads: the spot."""
+
+    spot: float
 
 
 @dataclass(frozen=True)
@@ -65,19 +75,6 @@ class ValueProfile:
     accuracy: str
 
 
-def _nodal(sol: GridSolution) -> tuple[FloatArray, FloatArray]:
-    """v_x and v_xx on every node by five-point central differences (two end nodes: NaN)."""
-    v, h = sol.values, sol.space.h
-    n = v.shape[0]
-    w = fd_weights(0.0, np.arange(-2.0, 3.0), 2)
-    segs = [v[2 + off : n - 2 + off] for off in range(-2, 3)]
-    vx = np.full(n, np.nan)
-    vxx = np.full(n, np.nan)
-    vx[2:-2] = sum(w[1, i] * seg for i, seg in enumerate(segs)) / h
-    vxx[2:-2] = sum(w[2, i] * seg for i, seg in enumerate(segs)) / (h * h)
-    return vx, vxx
-
-
 def value_profile(
     option: Option,
     market: Market,
@@ -106,7 +103,7 @@ def value_profile(
     InputError
         For an input outside its domain, or an option that expires at valuation.
     """
-    from .pricing import _resolve_grid  # the presets live with price()
+    from .pricing import _read, _resolve_grid, _richardson  # price()'s own rules
 
     if not width_sd > 0.0 or not math.isfinite(width_sd):
         raise InputError("width_sd", width_sd, "must be a positive number")
@@ -119,35 +116,27 @@ def value_profile(
     space_c, time_c, acc_name = _resolve_grid(problem, accuracy, grid)
     coarse = solve(problem, space_c, time_c, solver)
     fine = solve(problem, space_c.refined(), time_c.refined(), solver)
-    vc, pc = coarse.values, coarse.payoff
-    vf = fine.values[::2]
-    value = vf + (vf - vc) / 3.0
-    dxc, dxxc = _nodal(coarse)
-    dxf, dxxf = (a[::2] for a in _nodal(fine))
-    vx = dxf + (dxf - dxc) / 3.0
-    vxx = dxxf + (dxxf - dxxc) / 3.0
+    pc = coarse.payoff
     x = coarse.x  # log-moneyness of the nodes at valuation (any frame)
     s = k * (np.exp(x) + problem.escrow_pv)  # escrowed model: nodes are spot less PV(D)
-    # exercised: beyond the critical spot located on the finer grid (as price() decides)
-    x_star = float(fine.report.boundary_x[-1]) if option.is_american else math.nan
-    if math.isfinite(x_star):
-        # the march reports the critical spot itself (not the node's spot less PV(D))
-        xs = np.log(s / k)
-        exercised = (xs <= x_star) if option.is_put else (xs >= x_star)
-        exercised &= pc > 0.0
-    else:
-        exercised = np.zeros(x.shape, dtype=bool)
-    if option.is_american:
-        np.maximum(value, pc, out=value)
-    delta = vx / np.exp(x)
-    gamma = (vxx - vx) / (k * np.exp(2.0 * x))
-    delta[exercised] = -1.0 if option.is_put else 1.0
-    gamma[exercised] = 0.0
     sd = market.vol * math.sqrt(t)
     lo = min(0.0, problem.x_spot) - width_sd * sd
     hi = max(0.0, problem.x_spot) + width_sd * sd
-    keep = (x >= lo) & (x <= hi) & np.isfinite(vx) & np.isfinite(dxc)
+    # nodes in the window, the two at either grid end left out (their values are the far
+    # field's, not the solution's)
+    keep = (x >= lo) & (x <= hi)
+    keep[:2] = keep[-2:] = False
+    value, delta, gamma = (np.full(x.shape, np.nan) for _ in range(3))
+    exercised = np.zeros(x.shape, dtype=bool)
+    for i in np.flatnonzero(keep):
+        xi = float(x[i])
+        rc, rf = _read(coarse, problem, k, xi), _read(fine, problem, k, xi)
+        value[i], delta[i], gamma[i] = _richardson(
+            rc, rf, option, _AtSpot(float(s[i])), problem.div_yield, t)
+        exercised[i] = rf.exercised
+    if option.is_american:  # never below the payoff, as drawn (rounding aside)
+        np.maximum(value, k * pc, out=value)
     return ValueProfile(
-        s[keep], k * value[keep], k * pc[keep], delta[keep], gamma[keep], exercised[keep],
+        s[keep], value[keep], k * pc[keep], delta[keep], gamma[keep], exercised[keep],
         option, market, t, acc_name,
     )

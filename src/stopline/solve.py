@@ -293,14 +293,29 @@ def _solve_with_dividends(
         events[k] = events.get(k, 0.0) + d
     escrowed = problem.escrowed
     pv_after = _dividends_ahead(problem, plan, to_expiry=False) if escrowed else None
+    # the far field below the grid at an ex-date (a spot dropped below the first node) takes
+    # the plain discount factor and the dividends still ahead, capped at each dropped spot
+    df_r_plain = plan.df_r
+    ahead = np.zeros_like(plan.df_r)
     if not escrowed:
         # Far field of the spot model: the discounted forward is lowered by the dividends
         # ahead, so the European asymptote K e^{-r tau} - S e^{-q tau} gains their value
         # (kept below K e^{-r tau} for a put, whose stock cannot fall below zero).
         adj = _dividends_ahead(problem, plan, to_expiry=True)
+        ahead = adj
         if problem.is_put:
             adj = np.minimum(adj, np.exp(space.x_min) * plan.df_q)
         plan = replace(plan, df_r=plan.df_r + adj)
+        if problem.is_put and problem.american:
+            # an American put deep in the money may do better by waiting for the dividends
+            # ahead to take the spot to zero and exercising just after: its far field is at
+            # least that (zero-vol) value, at the grid's end and, where the dividends ahead
+            # exceed the forward of that end, at every spot dropped below it
+            s_lo = float(np.exp(space.x_min))
+            wait = _put_after_dividends(problem, plan, s_lo)
+            plan = replace(plan, df_r=np.maximum(plan.df_r, wait + s_lo * plan.df_q))
+            df_r_plain = np.where(ahead >= s_lo * plan.df_q, np.maximum(df_r_plain, wait),
+                                  df_r_plain)
     work = np.empty_like(v)
     if at_expiry > 0.0:
         if escrowed:
@@ -308,8 +323,8 @@ def _solve_with_dividends(
             if problem.american:
                 ex = _shifted_payoff(space, problem.is_put, at_expiry)
                 _kernels.dividend_jump(
-                    v, ex, space.x_min, space.h, 0.0, at_expiry, 1.0, 1.0, problem.is_put, True,
-                    work,
+                    v, ex, space.x_min, space.h, 0.0, at_expiry, 1.0, 1.0, 0.0, problem.is_put,
+                    True, work,
                 )
                 v[:] = work
         else:
@@ -346,14 +361,15 @@ def _solve_with_dividends(
             if not escrowed or problem.american:
                 _kernels.dividend_jump(
                     v, ex, space.x_min, space.h, 0.0 if escrowed else d, pv_before,
-                    plan.df_r[last], plan.df_q[last], problem.is_put, problem.american, work,
+                    df_r_plain[last], plan.df_q[last], ahead[last], problem.is_put,
+                    problem.american, work,
                 )
                 v[:] = work
             if problem.american:
                 held = np.empty_like(v)
                 _kernels.value_after_drop(
-                    held_from, space.x_min, space.h, 0.0 if escrowed else d, plan.df_r[last],
-                    plan.df_q[last], problem.is_put, True, held,
+                    held_from, space.x_min, space.h, 0.0 if escrowed else d, df_r_plain[last],
+                    plan.df_q[last], ahead[last], problem.is_put, True, held,
                 )
                 bx = _crossing(held - ex, ex, space, problem.is_put)
             else:
@@ -468,6 +484,35 @@ def _dividends_ahead(problem: PDEProblem, plan: StepPlan, *, to_expiry: bool) ->
             grow = grow + _integral(q, np.full_like(t_now, t_ex), expiry)
         out[ahead] += d * np.exp(-grow)
     return out
+
+
+def _put_after_dividends(problem: PDEProblem, plan: StepPlan, s: float) -> FloatArray:
+    """Per step: the best zero-vol value / strike of a put exercised just after one of the
+    ex-dates still to come, from spot / strike ``s`` at the step's end (spot model).
+
+    Along the path the spot grows at ``r - q`` and drops by each dividend, not below zero;
+    exercising just after ex-date ``j`` is worth ``exp(-int r) (1 - S_j)^+``.
+    """
+    rate, q = problem.coefficients[0], problem.coefficients[1]
+    expiry = problem.expiry
+    tau = plan.tau
+    spot = np.full_like(tau, s)
+    t_cur = np.maximum(expiry - tau, 0.0)
+    t_now = t_cur.copy()
+    best = np.zeros_like(tau)
+    order = np.argsort(-np.asarray(problem.dividend_tau), kind="stable")  # calendar order
+    for i in order:
+        t_d, d = problem.dividend_tau[i], problem.dividend_amount[i]
+        ahead = tau > t_d * (1.0 + 1e-12) + 1e-14
+        if not ahead.any():
+            continue
+        t_ex = expiry - t_d
+        grow = _integral(rate, t_cur[ahead], t_ex) - _integral(q, t_cur[ahead], t_ex)
+        spot[ahead] = np.maximum(spot[ahead] * np.exp(grow) - d, 0.0)
+        t_cur[ahead] = t_ex
+        value = np.exp(-_integral(rate, t_now[ahead], t_ex)) * np.maximum(1.0 - spot[ahead], 0.0)
+        best[ahead] = np.maximum(best[ahead], value)
+    return best
 
 
 def _integral(curve: Curve, t0: FloatArray, t1: float) -> FloatArray:

@@ -37,6 +37,12 @@ _FAMILY_STYLE = {
 }
 
 
+#: What the provenance words in check sources mean (report and summary).
+PROVENANCE = ("Published values marked 'recalled' are from memory: recalled from the "
+              "publication rather than read in it, and re-derived independently where the "
+              "check says so; values marked 'seen' were read in the publication.")
+
+
 def _finite(x: object) -> object:
     if isinstance(x, float) and not math.isfinite(x):
         return None
@@ -85,6 +91,7 @@ def summary(run: ValidationRun) -> dict[str, object]:
         "seconds": round(run.seconds, 2),
         "environment": run.environment,
         "caution": CAUTION,
+        "provenance": PROVENANCE,
         "passed": run.passed,
         "n_checks": len(run.checks),
         "n_failed": len(run.failed),
@@ -271,8 +278,7 @@ def render_html(run: ValidationRun, figs: dict[str, bytes] | None = None) -> str
         "with an answer it does not produce itself (a closed form, an independent binomial "
         "tree or approximation, a published table, an exact identity, or the same equation "
         "solved on much finer grids), names the source of that answer, and states the "
-        "tolerance it is held to. Published values marked 'recalled' were recalled from the "
-        "publication rather than read in it; 'seen' values were read in it. The published "
+        "tolerance it is held to. " + html.escape(PROVENANCE) + " The published "
         "table carries an independent Leisen-Reimer tree beside each value. The "
         "Barone-Adesi-Whaley and Bjerksund-Stensland formulas are approximations: they appear "
         "with their own error sizes, not as references.</p>",

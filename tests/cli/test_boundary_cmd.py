@@ -91,3 +91,60 @@ def test_boundary_takes_cash_dividends(runner: CliRunner, tmp_path: Path) -> Non
     got = np.array([float(row["critical_spot"]) if row["critical_spot"] else np.nan for row in rows])
     np.testing.assert_allclose(got, res.boundary.spot[::-1], rtol=1e-9)
     assert png.read_bytes()[:8] == PNG_MAGIC
+
+
+def _pixels(path: Path) -> np.ndarray:
+    import matplotlib.image as mpimg
+
+    return np.asarray(mpimg.imread(path))
+
+
+@pytest.mark.parametrize("method", ["direct", "fitted"])
+def test_boundary_in_years_with_either_solver(runner: CliRunner, tmp_path: Path, method: str) -> None:
+    # common practice: without dates the CSV counts years from valuation (date column empty),
+    # its points are the library's with the same solver, and the PNG decodes to the figure's
+    # size (8 x 5.2 inches at 150 dpi).
+    png, table = tmp_path / "y.png", tmp_path / "y.csv"
+    r = runner.invoke(app, ["boundary", *CONTRACT, "--expiry", "0.75", "--method", method,
+                            "--out", str(png), "--csv", str(table)])
+    assert r.exit_code == 0, r.output
+    rows = list(csv.DictReader(table.open()))
+    res = price(Option("put", 100.0, 0.75), Market(100.0, 0.05, 0.3), method=method)
+    assert all(row["date"] == "" for row in rows)
+    years = np.array([float(row["years_from_valuation"]) for row in rows])
+    np.testing.assert_allclose(years, 0.75 - res.boundary.time_to_expiry[::-1], rtol=0, atol=1e-9)
+    got = np.array([float(row["critical_spot"]) for row in rows])
+    np.testing.assert_allclose(got, res.boundary.spot[::-1], rtol=1e-9)
+    assert f"critical spot today: {res.boundary.spot[-1]:.6g}" in r.output
+    assert _pixels(png).shape[:2] == (780, 1200)
+
+
+def test_price_plot_of_an_american_option(runner: CliRunner, tmp_path: Path) -> None:
+    # common practice: `price --plot` writes the value/delta/gamma figure (7.5 x 8.5 inches at
+    # 150 dpi) next to the usual table, which still carries the caution.
+    fig = tmp_path / "v.png"
+    r = runner.invoke(app, ["price", *CONTRACT, "--expiry", "0.5", "--method", "fitted",
+                            "--plot", str(fig)])
+    assert r.exit_code == 0, r.output
+    assert f"figure: {fig}" in r.output.replace("\n", "") and "model-risk" in r.output
+    px = _pixels(fig)
+    assert px.shape[:2] == (1275, 1125) and px[..., :3].std() > 0.05
+
+
+def test_price_plot_rejects_a_missing_folder(runner: CliRunner, tmp_path: Path) -> None:
+    # common practice: bad input -> one line naming the field, exit 2, no traceback.
+    r = runner.invoke(app, ["price", *CONTRACT, "--expiry", "1", "--plot", str(tmp_path / "no" / "v.png")])
+    assert r.exit_code == 2 and "plot=" in r.output and "Traceback" not in r.output
+
+
+def test_boundary_takes_the_same_contract_and_market_flags_as_price() -> None:
+    # common practice: one set of contract and market flags for both commands; each adds
+    # only its own outputs (price: --json, --plot; boundary: --out, --csv).
+    import typer.main
+
+    commands = typer.main.get_command(app).commands
+    flags = {name: {o for p in commands[name].params for o in p.opts} for name in ("price", "boundary")}
+    assert flags["price"] - {"--json", "--plot"} == flags["boundary"] - {"--out", "--csv"}
+    assert {"--kind", "--spot", "--strike", "--expiry", "--rate", "--vol", "--div-yield",
+            "--valuation-date", "--dividend", "--dividend-model", "--accuracy",
+            "--method"} <= flags["boundary"]

@@ -186,3 +186,82 @@ def test_smile_figure_without_any_good_row() -> None:
     fig = implied_cli.smile_figure([bad], "empty")
     assert len(fig.axes[0].get_lines()) == 0
     assert any("no implied vol" in t.get_text() for t in fig.axes[0].texts)
+
+
+def test_cash_dividends_column_is_read(tmp_path: Path) -> None:
+    # common practice: the quote of an option on a stock paying a cash dividend inverts to the
+    # vol it was priced at only if the dividend is in the model; without the column the vol
+    # comes out different (so the column is read, not carried through unused)
+    mkt = Market(100.0, 0.03, 0.3, dividends="0.2:2.5")
+    q = f"{price(Option('put', 100.0, 0.5), mkt).price:.10f}"
+    header = ["id", "kind", "style", "spot", "strike", "expiry", "rate", "dividends", "quote"]
+    rows = [["div", "put", "american", 100, 100, 0.5, 0.03, "0.2:2.5", q],
+            ["none", "put", "american", 100, 100, 0.5, 0.03, "", q],
+            ["bad", "put", "american", 100, 100, 0.5, 0.03, "0.2:-1", q]]
+    out = tmp_path / "o"
+    res = runner.invoke(app, ["implied", str(_write(tmp_path / "q.csv", header, rows)),
+                              "--out", str(out), "--workers", "1"])
+    assert res.exit_code == 1, res.output
+    div, none, bad = _read(out / "implied.csv")
+    assert div["status"] == "ok" and abs(float(div["implied_vol"]) - 0.3) <= 1e-6
+    assert none["status"] == "ok" and float(none["implied_vol"]) - 0.3 > 0.01
+    assert bad["status"] == "error" and bad["note"].startswith("dividends=")
+    assert bad["dividends"] == "0.2:-1"  # carried through as written
+
+
+def test_column_named_twice_is_refused(tmp_path: Path) -> None:
+    header = ["id", "kind", "style", "spot", "strike", "expiry", "rate", "quote", "spot"]
+    path = _write(tmp_path / "q.csv", header, [["a", "put", "american", 100, 100, 0.5, 0.05, 5, 90]])
+    res = runner.invoke(app, ["implied", str(path), "--out", str(tmp_path / "o")])
+    assert res.exit_code == 2 and "twice" in res.output and "spot" in res.output
+    assert "Traceback" not in res.output and not (tmp_path / "o").exists()
+
+
+def test_default_uses_all_cores_and_shows_progress(tmp_path: Path) -> None:
+    import os
+
+    header = ["id", "kind", "style", "spot", "strike", "expiry", "rate", "quote"]
+    rows = [[f"r{i}", "put", "american", 100, k, 0.5, 0.05, _quote("put", 100, k, 0.5, 0.05, 0.3)]
+            for i, k in enumerate((90.0, 100.0, 110.0))]
+    res = runner.invoke(app, ["implied", str(_write(tmp_path / "q.csv", header, rows)),
+                              "--out", str(tmp_path / "o")])
+    assert res.exit_code == 0, res.output
+    workers = min(os.cpu_count() or 1, len(rows))
+    assert f"{workers} worker(s)" in " ".join(res.output.split())
+    assert "implied vols" in res.stderr and "3/3" in res.stderr  # the progress bar, on stderr
+
+
+def test_smile_line_goes_through_the_out_of_the_money_quote(tmp_path: Path, figures: list) -> None:
+    # a put and a call at each strike, two vols: the line takes the put below the spot and
+    # the call above it; the in-the-money ones are open markers off the line
+    header = ["id", "kind", "style", "spot", "strike", "expiry", "rate", "quote"]
+    rows = []
+    for k in (90.0, 110.0):
+        for kind in ("put", "call"):
+            otm = (kind == "put") == (k < 100.0)
+            v = 0.30 if otm else 0.40
+            rows.append([f"{kind}{k:g}", kind, "american", 100, k, 0.5, 0.03,
+                         _quote(kind, 100, k, 0.5, 0.03, v)])
+    res = runner.invoke(app, ["implied", str(_write(tmp_path / "q.csv", header, rows)),
+                              "--out", str(tmp_path / "o"), "--workers", "1"])
+    assert res.exit_code == 0, res.output
+    (fig,) = figures
+    ax = fig.axes[0]
+    (line,) = ax.get_lines()
+    assert list(line.get_xdata()) == [90.0, 110.0]
+    assert [round(y, 4) for y in line.get_ydata()] == [30.0, 30.0]
+    off = [tuple(p) for c in ax.collections for p in c.get_offsets()]
+    assert sorted((x, round(y, 4)) for x, y in off) == [(90.0, 40.0), (110.0, 40.0)]
+
+
+def test_unusable_out_folder_is_a_clean_error(tmp_path: Path) -> None:
+    header = ["id", "kind", "style", "spot", "strike", "expiry", "rate", "quote"]
+    src = _write(tmp_path / "implied.csv", header, [["a", "put", "american", 100, 100, 0.5, 0.05, 5]])
+    before = src.read_text()
+    # --out is a file
+    res = runner.invoke(app, ["implied", str(src), "--out", str(src)])
+    assert res.exit_code == 2 and "--out=" in res.output and "cannot hold" in res.output
+    # --out would overwrite the quotes themselves
+    res = runner.invoke(app, ["implied", str(src), "--out", str(tmp_path)])
+    assert res.exit_code == 2 and "would overwrite the quotes file" in res.output
+    assert src.read_text() == before and "Traceback" not in res.output

@@ -30,6 +30,19 @@ def test_textbook_values() -> None:
     assert bsm_price("put", 42.0, 40.0, 0.5, 0.10, 0.0, 0.2) == pytest.approx(0.81, abs=5e-3)
 
 
+def test_hull_greeks_example() -> None:
+    # Hull, Options, Futures, and Other Derivatives, Greek letters chapter (from memory): a
+    # call with S = 49, K = 50, r = 0.05, vol 0.2, T = 20 weeks (0.3846), no dividends:
+    # price 2.40, delta 0.522, gamma 0.066, theta -4.31 per year, vega 12.1 per unit of
+    # volatility, rho 8.91 per unit of the rate. Each within half a unit of its last printed
+    # digit.
+    g = bsm("call", 49.0, 50.0, 0.3846, 0.05, 0.0, 0.2)
+    printed = {"price": (2.40, 2), "delta": (0.522, 3), "gamma": (0.066, 3),
+               "theta": (-4.31, 2), "vega": (12.1, 1), "rho": (8.91, 2)}
+    for name, (value, digits) in printed.items():
+        assert getattr(g, name) == pytest.approx(value, abs=0.5 * 10.0**-digits), name
+
+
 def test_put_call_parity(rng: np.random.Generator) -> None:
     # Common practice: C - P = S e^{-qT} - K e^{-rT}, vectorised over random inputs.
     n = 200

@@ -80,4 +80,6 @@ def boundary_cmd(
         typer.echo("no early exercise today; the figure shows when it would be optimal")
     else:
         typer.echo("early exercise is not optimal at any time for this contract")
+    for w in res.stats.warnings:
+        typer.echo(f"warning: {w}")
     typer.echo(CAUTION)

@@ -1,15 +1,20 @@
 """``stopline implied``: implied vols of a chain of quotes, a CSV of answers and a smile plot.
 
 Input: a CSV with a header naming the columns ``id, kind, style, spot, strike, expiry, rate,
-quote`` and optionally ``div_yield`` and ``valuation_date`` (needed when ``expiry`` is a date;
-year fractions ACT/365 fixed). Other columns are carried through untouched.
+quote`` and optionally ``div_yield``, ``dividends`` (cash dividends ``WHEN:AMOUNT;...``, as in
+``stopline crosscheck``), ``dividend_model`` (``spot``, the default, or ``escrowed``) and
+``valuation_date`` (needed when ``expiry`` or an ex-date is a date; year fractions ACT/365
+fixed). Other columns are carried through untouched; a column named twice is refused.
 
 Output, in ``--out DIR``:
 
 - ``implied.csv``: every input row, in input order, with ``implied_vol``, ``status``
   (``ok`` or ``error``) and ``note`` appended; a bad row is kept with ``status=error`` and a
   note naming the field and value.
-- ``smile.png``: implied vol against strike, one line per expiry.
+- ``smile.png``: implied vol against strike, one line per expiry. Where an expiry has several
+  quotes at one strike (a put and a call), the line goes through the out-of-the-money one (the
+  put below the spot, the call above it: the better determined vol) and the others are drawn
+  as open markers off the line.
 
 Both are written atomically (a temporary file in DIR, then renamed). The exit code is 1 if
 any row had an error (after everything is written), 2 for an unusable file.
@@ -43,7 +48,7 @@ __all__ = [
 ]
 
 REQUIRED_COLUMNS = ("id", "kind", "style", "spot", "strike", "expiry", "rate", "quote")
-OPTIONAL_COLUMNS = ("div_yield", "valuation_date")
+OPTIONAL_COLUMNS = ("div_yield", "dividends", "dividend_model", "valuation_date")
 ADDED_COLUMNS = ("implied_vol", "status", "note")
 
 
@@ -71,6 +76,11 @@ class RowOutcome:
         The expiry as written in the file (groups the smile's lines).
     price_calls : int
         Finite-difference prices computed for this row.
+    kind : str
+        ``"put"`` or ``"call"`` (empty when unreadable).
+    spot : float
+        The row's spot (NaN when unreadable); with ``kind``, says which quote at a strike is
+        out of the money.
     """
 
     vol: float
@@ -80,6 +90,8 @@ class RowOutcome:
     time_to_expiry: float = math.nan
     expiry_label: str = ""
     price_calls: int = 0
+    kind: str = ""
+    spot: float = math.nan
 
 
 def _number(row: dict[str, str | None], field: str, default: float | None = None) -> float:
@@ -103,6 +115,7 @@ def solve_row(row: dict[str, str | None], accuracy: str = "standard") -> RowOutc
     message as the note.
     """
     from ..contract import Option
+    from ..dividends import dividend_schedule
     from ..errors import StoplineError
     from ..implied import implied_vol_detail
     from ..market import Market
@@ -124,15 +137,21 @@ def solve_row(row: dict[str, str | None], accuracy: str = "standard") -> RowOutc
         market = Market(
             _number(row, "spot"), _number(row, "rate"), 0.2,
             div_yield=_number(row, "div_yield", 0.0), valuation_date=valuation,
+            dividends=(row.get("dividends") or "").strip(),
+            dividend_model=(row.get("dividend_model") or "").strip() or "spot",
         )
         t = option.time_to_expiry(market.valuation_date)
+        ignored = dividend_schedule(market.dividends, t, market.valuation_date).warnings
         res = implied_vol_detail(option, market, _number(row, "quote"), accuracy=accuracy)
     except (StoplineError, _RowShape) as exc:
         return RowOutcome(math.nan, "error", str(exc), strike, t, label)
     except Exception as exc:  # noqa: BLE001 - a batch keeps every row; say it is unexpected
         return RowOutcome(math.nan, "error", f"unexpected {type(exc).__name__}: {exc} (please "
                           "report this row)", strike, t, label)
-    return RowOutcome(res.vol, "ok", res.note, strike, t, label, res.price_calls)
+    # a dividend left out (after expiry, or on the valuation date) is said in the note
+    note = "; ".join([*ignored, res.note] if res.note else ignored)
+    return RowOutcome(res.vol, "ok", note, strike, t, label, res.price_calls, option.kind,
+                      market.spot)
 
 
 class _RowShape(Exception):
@@ -153,6 +172,10 @@ def _read_quotes(path: Path) -> tuple[list[str], list[dict[str, str | None]]]:
         header = [h.strip() for h in (reader.fieldnames or [])]
         reader.fieldnames = header
         rows = list(reader)
+    dupes = sorted({h for h in header if header.count(h) > 1})
+    if dupes:
+        raise InputError("QUOTES", str(path), f"names column(s) twice: {', '.join(dupes)} (which "
+                         "one to read would be a guess)")
     missing = [c for c in REQUIRED_COLUMNS if c not in header]
     if missing:
         raise InputError("QUOTES", str(path), f"has no column {', '.join(missing)} (header: "
@@ -189,8 +212,34 @@ def _write_csv(path: Path, header: list[str], rows: list[dict[str, str | None]],
     _write_atomic(path, write)
 
 
+def _one_per_strike(pts: list[RowOutcome]) -> tuple[list[RowOutcome], list[RowOutcome]]:
+    """Split one expiry's answers into the smile's line (one per strike, by strike) and the
+    rest: at a strike quoted more than once, the out-of-the-money quote goes on the line (the
+    put below the spot, the call above it; at the spot, the first in the file)."""
+
+    def rank(r: RowOutcome) -> int:
+        if r.strike == r.spot:
+            return 1
+        otm = r.strike < r.spot if r.kind == "put" else r.strike > r.spot
+        return 0 if otm else 2
+
+    by_strike: dict[float, list[RowOutcome]] = {}
+    for r in pts:
+        by_strike.setdefault(r.strike, []).append(r)
+    line, rest = [], []
+    for strike in sorted(by_strike):
+        same = by_strike[strike]
+        best = min(range(len(same)), key=lambda i: (rank(same[i]), i))
+        line.append(same[best])
+        rest.extend(r for i, r in enumerate(same) if i != best)
+    return line, rest
+
+
 def smile_figure(outcomes: list[RowOutcome], title: str) -> Figure:
     """Implied vol (%) against strike, one line per expiry, with the caution in small type.
+
+    At a strike quoted more than once for an expiry (a put and a call), the line goes through
+    the out-of-the-money quote and the others are drawn as open markers of the same colour.
 
     Parameters
     ----------
@@ -213,11 +262,20 @@ def smile_figure(outcomes: list[RowOutcome], title: str) -> Figure:
     fig = Figure(figsize=(8.0, 5.4))
     fig.subplots_adjust(left=0.09, right=0.98, top=0.93, bottom=0.19)
     ax = fig.add_subplot()
+    off_line = False
     for label, pts in sorted(groups.items(), key=lambda kv: kv[1][0].time_to_expiry):
-        pts = sorted(pts, key=lambda r: r.strike)
-        t = pts[0].time_to_expiry
-        ax.plot([r.strike for r in pts], [100.0 * r.vol for r in pts], marker="o", ms=3.5,
-                lw=1.4, label=f"{label} ({t:.3f} y)" if label != f"{t:g}" else f"{t:g} y")
+        line, rest = _one_per_strike(pts)
+        t = line[0].time_to_expiry
+        (drawn,) = ax.plot([r.strike for r in line], [100.0 * r.vol for r in line], marker="o",
+                           ms=3.5, lw=1.4,
+                           label=f"{label} ({t:.3f} y)" if label != f"{t:g}" else f"{t:g} y")
+        if rest:
+            off_line = True
+            ax.scatter([r.strike for r in rest], [100.0 * r.vol for r in rest], s=22,
+                       facecolors="none", edgecolors=drawn.get_color(), linewidths=1.0)
+    if off_line:
+        ax.scatter([], [], s=22, facecolors="none", edgecolors="0.35", linewidths=1.0,
+                   label="another quote at a strike on the line\n(in the money, or repeated)")
     ax.set_title(title)
     ax.set_xlabel("strike (currency of the spot)")
     ax.set_ylabel("implied volatility (% per year)")
@@ -230,6 +288,22 @@ def smile_figure(outcomes: list[RowOutcome], title: str) -> Figure:
     fig.text(0.01, 0.01, CAUTION + " Expiries from dates: ACT/365F.", fontsize=6,
              style="italic", color="0.35", wrap=True, va="bottom")
     return fig
+
+
+def _prepare_out(out: Path, quotes: Path) -> None:
+    """Create ``out`` and check it can take the answers before any work is done."""
+    from ..errors import InputError
+
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+        with tempfile.TemporaryFile(dir=out):
+            pass
+    except OSError as exc:
+        raise InputError("--out", str(out), f"cannot hold the answers ({exc.strerror or exc})"
+                         ) from None
+    if (out / "implied.csv").resolve() == quotes.resolve():
+        raise InputError("--out", str(out), "would overwrite the quotes file implied.csv; "
+                         "choose another folder")
 
 
 def _write_png(path: Path, fig: Figure) -> None:
@@ -249,7 +323,8 @@ def implied_cmd(
     """Implied vols of a chain of American or European quotes, with a smile plot.
 
     Columns: id, kind, style, spot, strike, expiry (years or YYYY-MM-DD), rate, quote.
-    Optional: div_yield, valuation_date. Other columns are carried through.
+    Optional: div_yield, dividends (WHEN:AMOUNT;...), dividend_model (spot or escrowed),
+    valuation_date. Other columns are carried through.
     Writes OUT/implied.csv and OUT/smile.png; exit code 1 if any row had an error.
     """
     from concurrent.futures import ProcessPoolExecutor
@@ -258,7 +333,7 @@ def implied_cmd(
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TimeElapsedColumn
 
     header, rows = _read_quotes(quotes)
-    out.mkdir(parents=True, exist_ok=True)
+    _prepare_out(out, quotes)
     n_workers = workers or os.cpu_count() or 1
     n_workers = max(1, min(n_workers, len(rows)))
     console = Console(stderr=True)

@@ -1,9 +1,11 @@
 """Independent reference methods for checking stopline's finite-difference prices.
 
-Nothing in the pricing core imports this package; the validation harness and the
-cross-check do. Every function takes plain floats (time in years, continuously compounded
-``rate`` and ``div_yield``, annualised ``vol``) and raises
-:class:`~stopline.errors.InputError` for inputs outside their domain.
+Nothing in the pricing core imports this package (``tests/reference/test_isolation.py``
+scans every module outside ``reference/`` and the validation harness, and checks at run time
+that pricing leaves it unloaded); the validation harness and the tests use it. Every
+function takes plain floats (time in years, continuously compounded ``rate`` and
+``div_yield``, annualised ``vol``) and raises :class:`~stopline.errors.InputError` for inputs
+outside their domain.
 
 Closed forms (:mod:`.closed_form`)
     :func:`bsm`, :func:`bsm_price`, :func:`perpetual_american`
