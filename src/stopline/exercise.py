@@ -132,11 +132,16 @@ class ProjectedSOR:
         A step stops when the largest change in one sweep is below ``tol`` (value / strike).
     max_iter : int
         Sweep cap per step; reaching it raises :class:`ConvergenceError`.
+    fitted : bool
+        Where it applies (see :func:`stopline.solve.fitted_boundary`), solve the scheme of
+        the fitted direct sweep (ghost value at the first held node, damped rows next to the
+        boundary), so that both methods solve the same discrete problem.
     """
 
     omega: float | None = None
     tol: float = 1e-12
     max_iter: int = 20_000
+    fitted: bool = True
     name: str = "psor"
 
     def __post_init__(self) -> None:
@@ -152,8 +157,9 @@ class ProjectedSOR:
         is_put: bool, american: bool, fitted: bool = False,
     ) -> MarchReport:
         """Advance ``v`` (in place) through every step of ``plan``; ``ex = exp(space.x)``;
-        ``fitted`` is ignored: projected SOR solves the plain Crank-Nicolson problem (a
-        nonlinear ghost value makes its sweeps cycle between holding and exercising a node)."""
+        ``fitted``: whether the problem allows fitting the exercise boundary (see
+        :func:`stopline.solve.fitted_boundary`); it is done when this solver's ``fitted``
+        is set too."""
         n_steps = plan.dt.shape[0]
         bnd = np.empty(n_steps)
         iters = np.zeros(n_steps, dtype=np.int64)
@@ -161,7 +167,7 @@ class ProjectedSOR:
         failed = _kernels.march_psor(
             v, ex, space.x_min, space.h, plan.dt, plan.theta, plan.lo, plan.di, plan.up,
             plan.df_r, plan.df_q, plan.shift, plan.scale, is_put, american, bnd, omega, self.tol,
-            self.max_iter, iters,
+            self.max_iter, iters, fitted and self.fitted,
         )
         if failed >= 0:
             raise ConvergenceError(
