@@ -640,14 +640,13 @@ def price(
         Spot, rate, yield, vol and valuation date.
     accuracy : {"fast", "standard", "fine"}
         Target absolute error relative to the strike over typical contracts: 1e-4, 1e-6, 1e-8.
-        Met over 1200 typical American contracts by ``method="fitted"``; the default
-        Crank-Nicolson sweep misses it on about 2 % of them, where the exercise boundary
-        makes its error erratic (``benchmarks/accuracy_study.py``; README, Accuracy).
-    method : {"direct", "fitted", "psor"} or a solver instance
+        Met over 1200 typical American contracts, every one within its target
+        (``benchmarks/accuracy_study.py``; README, Accuracy).
+    method : {"direct", "psor"} or a solver instance
         Solver of the early-exercise constraint (see :mod:`stopline.exercise`): ``"direct"``
-        Brennan-Schwartz on Crank-Nicolson steps (default), ``"fitted"`` the same sweep with
-        the boundary fitted in its cell and BDF2 steps after the Rannacher start, ``"psor"``
-        projected SOR on Crank-Nicolson steps.
+        the Brennan-Schwartz sweep (default), ``"psor"`` projected SOR. Both solve the same
+        Crank-Nicolson steps after a Rannacher start, with the exercise boundary fitted in
+        its cell where it applies (:class:`~stopline.exercise.DirectSweep`).
     grid : GridSpec or (space_points, time_levels), optional
         Expert override of the finer grid; ``accuracy`` is then ignored.
     greeks : {"full", "grid"}
@@ -849,18 +848,17 @@ def _gamma_warning(
 ) -> list[str]:
     """Gamma (and theta, which the PDE builds from it) is unreliable when the two grids'
     gammas differ by more than 5 % and that difference moves theta by more than 1e-3 of
-    the strike per year. Crank-Nicolson does that where the exercise boundary feeds it
-    oscillations it does not damp (long, very volatile American lives). Measured on the
-    benchmark's 200 typical contracts: it fires on one at fast and one at standard, none at
-    fine."""
+    the strike per year. Plain projected Crank-Nicolson (``DirectSweep(fitted=False)``) does
+    that where the exercise boundary feeds it oscillations it does not damp (long, very
+    volatile American lives); the fitted boundary damps them."""
     if rf.exercised or rc.exercised:
         return []
     diff = abs(rf.gamma - rc.gamma)
     if diff > 0.05 * abs(rf.gamma) and 0.5 * vol * vol * spot * spot * diff > 1e-3 * strike:
         return [
             f"the two grids' gammas differ by {diff / max(abs(rf.gamma), 1e-300):.0%}: gamma "
-            "and theta are unreliable here (Crank-Nicolson oscillations near the exercise "
-            "boundary); method='fitted' damps them"
+            "and theta are unreliable here (oscillations near the exercise boundary); a finer "
+            "accuracy preset will tell"
         ]
     return []
 
