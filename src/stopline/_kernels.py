@@ -222,6 +222,7 @@ def locate_boundary_tangent(v, t, payoff, x0, h, is_put):
 #: 1.5 3.6e-7, 2.5 4.5e-7, 4.0 6.4e-7; a band of whole rows switched on and off (not
 #: weighted) leaves 1e-6 to 9e-6.
 BAND_HALF_WIDTH = 1.5
+SWEEP_FACTOR = 1.0
 
 
 @njit(cache=True)
@@ -249,7 +250,7 @@ def damping_band(k, dt, theta, bnd, x0, h, n):
         return 1, 0, 0.0, 0.0
     c_lo = c_hi = (bnd[k - 1] - x0) / h
     if k >= 2 and not math.isnan(bnd[k - 2]):
-        ahead = c_lo + (bnd[k - 1] - bnd[k - 2]) / h * (dt[k] / dt[k - 1])
+        ahead = c_lo + SWEEP_FACTOR * (bnd[k - 1] - bnd[k - 2]) / h * (dt[k] / dt[k - 1])
         if ahead < c_lo:
             c_lo = ahead
         else:
@@ -266,7 +267,7 @@ def damping_band_tangent(k, dt, bnd, h, d1, d2):
     dc = d1 / h
     if k >= 2 and not math.isnan(bnd[k - 2]):
         r = dt[k] / dt[k - 1]
-        dahead = dc + (d1 - d2) / h * r
+        dahead = dc + SWEEP_FACTOR * (d1 - d2) / h * r
         if (bnd[k - 1] - bnd[k - 2]) * r < 0.0:
             return dahead, dc
         return dc, dahead
@@ -407,7 +408,7 @@ def _eliminate_up(rhs, w, aw, a, b, c, ga, gb, gc, j0, j1, keep_w):
             j = i
 
 
-@njit(cache=True, fastmath={"contract"})
+@njit(cache=True)
 def _damp_band(rhs, ga, gb, gc, cur, prev, j0, j1, c_lo, c_hi, k, dt, lo, di, up, keep_cn,
                keep_older):
     """Blend BDF2 into rows ``j0..j1`` (:func:`band_row`): their coefficients into
