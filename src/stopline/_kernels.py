@@ -297,15 +297,33 @@ def band_row(j, c_lo, c_hi, k, dt):
     return phi, d, dt[k] * (0.5 + 0.5 * phi) / d, w
 
 
+@njit(cache=True)
+def _pivot_map(a, b, c):
+    """The map of the reciprocal pivots of constant rows, ``w -> 1 / (b - a c w)``, as a
+    Moebius map: ``(ok, ws, wp, kz)`` with ``ws`` its attracting fixed point, ``wp`` the other
+    one and ``kz = ws / wp``, so that ``z = (w - ws) / (w - wp)`` is multiplied by ``kz`` at
+    every row. A run of pivots then needs no division that waits for the one before
+    (``w = (ws - z wp) / (1 - z)``: the divisions overlap in the pipeline). ``ok`` is False
+    when the map has no two real fixed points (then the pivots are iterated)."""
+    p = a * c
+    disc = b * b - 4.0 * p
+    if not (p > 0.0 and disc > 0.0):
+        return False, 0.0, 0.0, 0.0
+    ws = 2.0 / (b + math.sqrt(disc))
+    wp = 1.0 / (p * ws)
+    return True, ws, wp, ws / wp
+
+
 @njit(cache=True, fastmath={"contract"})
 def _eliminate_down(rhs, w, aw, a, b, c, ga, gb, gc, j0, j1, keep_w):
     """Eliminate the upper diagonal from the top (a put's sweep): afterwards
     ``v_j = rhs_j - aw_j v_{j-1}`` (``rhs`` scaled by the pivot ``w_j``).
 
     Rows ``j0..j1`` have their own coefficients ``(ga, gb, gc)``, the others ``(a, b, c)``.
-    Once two pivots in a row of constant rows are equal they have reached the fixed point of
-    ``w -> 1 / (b - c a w)``, and the sweep goes on without a division, two rows at a time
-    (which halves the serial latency of its recurrence), up to the band or the end.
+    The pivots of a run of constant rows follow the closed form of :func:`_pivot_map`; once
+    they are within rounding of its fixed point the sweep goes on without a division, two
+    rows at a time (which halves the serial latency of its recurrence), up to the band or the
+    end.
     ``keep_w`` stores every pivot (the tangent march needs them).
     """
     n = rhs.shape[0]
@@ -313,18 +331,35 @@ def _eliminate_down(rhs, w, aw, a, b, c, ga, gb, gc, j0, j1, keep_w):
     r = 0.0
     wn = 0.0  # pivot of the row above (none at the top)
     an = 0.0  # sub-diagonal coefficient of the row above
+    ok, ws, wp, kz = _pivot_map(a, b, c)
+    z = 0.0
+    chain = False  # whether z holds the pivot of the row above (a constant row)
     while j >= 1:
         inb = j0 <= j <= j1
         aj = ga[j] if inb else a
         bj = gb[j] if inb else b
         cj = gc[j] if inb else c
         f = cj * wn
-        wj = 1.0 / (bj - f * an)
+        if chain and not inb:
+            z *= kz
+            wj = (ws - z * wp) / (1.0 - z)
+        else:
+            wj = 1.0 / (bj - f * an)
+            chain = ok and not inb
+            if chain:
+                z = (wj - ws) / (wj - wp)
+        if inb:
+            chain = False
+        if chain:
+            fixed = abs(z) < 1e-18
+            if fixed:
+                wj = ws
+        else:
+            fixed = (not inb) and wj == wn and an == a
         w[j] = wj
         aw[j] = aj * wj
         r = rhs[j] - f * r
         rhs[j] = r * wj
-        fixed = (not inb) and wj == wn and an == a
         wn = wj
         an = aj
         j -= 1
@@ -365,18 +400,35 @@ def _eliminate_up(rhs, w, aw, a, b, c, ga, gb, gc, j0, j1, keep_w):
     r = 0.0
     wn = 0.0
     cn = 0.0
+    ok, ws, wp, kz = _pivot_map(a, b, c)
+    z = 0.0
+    chain = False
     while j <= n - 2:
         inb = j0 <= j <= j1
         aj = ga[j] if inb else a
         bj = gb[j] if inb else b
         cj = gc[j] if inb else c
         f = aj * wn
-        wj = 1.0 / (bj - f * cn)
+        if chain and not inb:
+            z *= kz
+            wj = (ws - z * wp) / (1.0 - z)
+        else:
+            wj = 1.0 / (bj - f * cn)
+            chain = ok and not inb
+            if chain:
+                z = (wj - ws) / (wj - wp)
+        if inb:
+            chain = False
+        if chain:
+            fixed = abs(z) < 1e-18
+            if fixed:
+                wj = ws
+        else:
+            fixed = (not inb) and wj == wn and cn == c
         w[j] = wj
         aw[j] = cj * wj
         r = rhs[j] - f * r
         rhs[j] = r * wj
-        fixed = (not inb) and wj == wn and cn == c
         wn = wj
         cn = cj
         j += 1
@@ -1734,8 +1786,9 @@ def price_pair(
         Written: the fine grid's critical log-moneyness per step, ``strike e^x``, and its
         monotone fit.
     fitted : bool
-        March an American option with the fitted boundary and BDF2 steps (method
-        ``"fitted"``) instead of plain Crank-Nicolson (method ``"direct"``).
+        March an American option with the fitted boundary (the default direct sweep,
+        :func:`march_direct_tangents`) instead of plain projected Crank-Nicolson
+        (``DirectSweep(fitted=False)``).
 
     References
     ----------

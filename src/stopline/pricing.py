@@ -95,7 +95,7 @@ class AccuracyPreset:
 PRESETS: dict[str, AccuracyPreset] = {
     "fast": AccuracyPreset("fast", 1e-4, 16.0, 4.0, 32, 0.04),
     "standard": AccuracyPreset("standard", 1e-6, 20.0, 5.5, 100, 0.008),
-    "fine": AccuracyPreset("fine", 1e-8, 120.0, 7.0, 600, 0.0015),
+    "fine": AccuracyPreset("fine", 1e-8, 120.0, 7.0, 500, 0.002),
 }
 
 
