@@ -4,14 +4,16 @@ Run from the repository root::
 
     python benchmarks/accuracy_study.py              # 1000 typical + 100 short + 100 near-the-money
     python benchmarks/accuracy_study.py --n 300      # a smaller typical set
-    python benchmarks/accuracy_study.py --method fitted   # one solver only (default: both)
+    python benchmarks/accuracy_study.py --method direct   # one solver only
+                                                     # (default: direct and direct-plain)
 
 The contracts are drawn with a seed of their own (not the one of ``benchmarks/run.py``), from
 the ranges the presets promise: K = 100, S ~ U[70, 130], vol ~ U[0.1, 0.6],
 T ~ U[0.05, 3], r ~ U[0, 0.1], q ~ U[0, 0.08], puts and calls alternating; plus two
 stress subsets drawn alike except T ~ U[0.05, 0.1] ("short") and S ~ U[97, 103] ("atm").
 
-The references are ``price(grid=GridSpec(12001, 6000))`` (the same as ``benchmarks/run.py``),
+The references are ``price(grid=GridSpec(12001, 6000), method=DirectSweep(fitted=False))`` (the
+same as ``benchmarks/run.py``: plain projected Crank-Nicolson, independent of the default),
 computed over worker processes once and cached under ``/tmp`` by a key of the case set and
 the reference grid. For the first 100 cases a second reference on ``GridSpec(8001, 4000)``
 shows how accurate the reference itself is.
@@ -39,7 +41,7 @@ sys.path.insert(0, str(HERE.parent / "src"))
 
 import numpy as np  # noqa: E402
 
-from stopline import GridSpec, Market, Option, price  # noqa: E402
+from stopline import DirectSweep, GridSpec, Market, Option, price  # noqa: E402
 
 SEED = 7_310_442
 STRIKE = 100.0
@@ -77,12 +79,19 @@ def objects(case: dict) -> tuple[Option, Market]:
     return opt, mkt
 
 
+#: Solvers by name: the default, and the plain projected Crank-Nicolson sweep (no fitted
+#: boundary), which also solves the references (a discretisation independent of the default).
+SOLVERS = {"direct": "direct", "psor": "psor", "direct-plain": DirectSweep(fitted=False)}
+
+
 def _reference(args: tuple[dict, bool]) -> dict:
     case, check = args
     opt, mkt = objects(case)
-    row = {"ref": price(opt, mkt, grid=GridSpec(*REF_GRID), greeks="grid").price}
+    plain = SOLVERS["direct-plain"]
+    row = {"ref": price(opt, mkt, grid=GridSpec(*REF_GRID), greeks="grid", method=plain).price}
     if check:
-        row["check"] = price(opt, mkt, grid=GridSpec(*CHECK_GRID), greeks="grid").price
+        row["check"] = price(opt, mkt, grid=GridSpec(*CHECK_GRID), greeks="grid",
+                             method=plain).price
     return row
 
 
@@ -117,7 +126,7 @@ def study(cases: list[dict], refs: list[dict], presets: tuple[str, ...],
         err, est = [], []
         for case, ref in zip(cases, refs, strict=True):
             opt, mkt = objects(case)
-            r = price(opt, mkt, accuracy=name, method=method, greeks="grid")
+            r = price(opt, mkt, accuracy=name, method=SOLVERS[method], greeks="grid")
             err.append(abs(r.price - ref["ref"]) / STRIKE)
             est.append(r.error_estimate / STRIKE)
         out[name] = (np.array(err), np.array(est))
@@ -131,8 +140,9 @@ def main(argv: list[str] | None = None) -> None:
     ap.add_argument("--atm", type=int, default=100, help="near-the-money contracts")
     ap.add_argument("--workers", type=int, default=os.cpu_count() or 1)
     ap.add_argument("--presets", default=",".join(PRESETS))
-    ap.add_argument("--method", default="direct,fitted",
-                    help="solvers to study, comma separated (default: direct,fitted)")
+    ap.add_argument("--method", default="direct,direct-plain",
+                    help="solvers to study, comma separated: direct, psor, direct-plain "
+                         "(default: direct,direct-plain)")
     ap.add_argument("--worst", type=int, default=0, help="list the worst contracts per preset")
     args = ap.parse_args(argv)
     cases = make_cases(args.n, args.short, args.atm)
@@ -144,9 +154,9 @@ def main(argv: list[str] | None = None) -> None:
     groups = np.array([c["group"] for c in cases])
     kinds = np.array([c["kind"] for c in cases])
     print(f"\naccuracy study: {len(cases)} American contracts (seed {SEED}); "
-          f"reference price(grid=GridSpec{REF_GRID}), within {max(checks):.1e} x K of "
+          f"reference price(grid=GridSpec{REF_GRID}, plain sweep), within {max(checks):.1e} x K of "
           f"GridSpec{CHECK_GRID} on the first {len(checks)}")
-    head = (f"| {'method':6} | {'preset':8} | {'subset':12} | {'n':>5} | {'max err/K':>9} | {'p99':>8} | "
+    head = (f"| {'method':12} | {'preset':8} | {'subset':12} | {'n':>5} | {'max err/K':>9} | {'p99':>8} | "
             f"{'median':>8} | {'> target':>8} | {'err > est':>9} | {'miss/target':>11} |")
     print(head)
     print("|" + "|".join("-" * (len(c)) for c in head.split("|")[1:-1]) + "|")
@@ -160,7 +170,7 @@ def main(argv: list[str] | None = None) -> None:
             miss = int((e > TARGETS[name]).sum())
             under = int((e > s).sum())
             ratio = float(np.max(np.maximum(e - s, 0.0))) / TARGETS[name]
-            print(f"| {method:6} | {name:8} | {label:12} | {mask.sum():5d} | {e.max():9.1e} | "
+            print(f"| {method:12} | {name:8} | {label:12} | {mask.sum():5d} | {e.max():9.1e} | "
                   f"{np.percentile(e, 99):8.1e} | {np.median(e):8.1e} | {miss:8d} | "
                   f"{under:9d} | {ratio:11.2f} |")
         if args.worst:

@@ -133,7 +133,10 @@ def reference(c: dict) -> dict:
         out["second"] = math.nan
     else:
         opt, mkt = _objects(c)
-        out["ref"] = price(opt, mkt, accuracy="study-ref", greeks="grid").price / k
+        # plain projected Crank-Nicolson (no fitted boundary): a discretisation independent of
+        # the default solver; the refs cached under /tmp were computed this way
+        out["ref"] = price(opt, mkt, accuracy="study-ref", greeks="grid",
+                           method=_solver("direct-plain")).price / k
         try:
             out["second"] = lr_extrapolated_price(c["kind"], "american", s, k, *args[3:],
                                                   2001) / k
@@ -141,6 +144,14 @@ def reference(c: dict) -> dict:
             out["second"] = math.nan
     out["ref_seconds"] = time.perf_counter() - t0
     return out
+
+
+def _solver(method: str):  # noqa: ANN202
+    """A solver by name: "direct" and "psor" as ``price`` takes them, "direct-plain" the direct
+    sweep without the fitted boundary."""
+    from stopline import DirectSweep
+
+    return DirectSweep(fitted=False) if method == "direct-plain" else method
 
 
 def run_presets(c: dict, method: str = "direct") -> dict:
@@ -152,7 +163,7 @@ def run_presets(c: dict, method: str = "direct") -> dict:
     for name in PRESET_NAMES:
         t0 = time.perf_counter()
         try:
-            res = price(opt, mkt, accuracy=name, greeks="grid", method=method)
+            res = price(opt, mkt, accuracy=name, greeks="grid", method=_solver(method))
             out[name] = res.price / c["strike"]
             out[name + "_warn"] = len(res.stats.warnings)
             out[name + "_nodes"] = res.stats.space_points
@@ -193,7 +204,7 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--refresh", action="store_true", help="recompute cached references")
     ap.add_argument("--top", type=int, default=8, help="rows in each worst-case list")
     ap.add_argument("--only-american", action="store_true")
-    ap.add_argument("--method", default="direct", help="solver: direct (default) or fitted")
+    ap.add_argument("--method", default="direct", help="solver: direct (default), psor or direct-plain")
     ns = ap.parse_args(argv)
     contracts = sample(ns.n, ns.seed)
     if ns.only_american:

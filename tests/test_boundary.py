@@ -11,9 +11,9 @@ from scipy.optimize import isotonic_regression
 from stopline import Market, Option, price
 from stopline.boundary import monotone_fit
 
-#: Both solvers of the early-exercise constraint: Crank-Nicolson (the default) and the fitted
-#: boundary with BDF2 steps; every boundary check below holds for each.
-METHODS = ["direct", "fitted"]
+#: Both solvers of the early-exercise constraint (the direct sweep, the default, and projected
+#: SOR on the same scheme); every boundary check below holds for each.
+METHODS = ["direct", "psor"]
 
 
 def _spacing_in_spot(res, spot: float) -> float:

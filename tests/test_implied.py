@@ -245,16 +245,17 @@ def test_small_vega_earns_a_note() -> None:
 
 
 def test_quote_within_the_error_of_intrinsic_earns_a_note() -> None:
-    # Spot just outside the exercise region (critical spot about 139.5): the grid's price
-    # is 2.5e-4 above the intrinsic value 38.95, within its own error estimate (7e-4), and it
-    # is not monotone in the vol there at the 1e-6 x strike level, so the vol is not
-    # recovered; the round trip still holds and the result says why. (Spot 140, used before
-    # the boundary was located below the grid spacing, now lies inside the exercise region.)
-    opt, mkt = Option("call", 100.0, 1.0), Market(138.95, 0.02, 0.3, 0.08)
+    # Spot just outside the exercise region (critical spot about 139.586): the grid's price
+    # is 2.6e-6 above the intrinsic value 39.58, within its own error estimate (3e-6), so
+    # the quote hardly depends on the vol there (own computation: the vol comes back 6e-5
+    # off); the round trip still holds and the result says why. (Spot 138.95, used before
+    # the boundary was fitted, now lies 2e-3 above intrinsic and its vol is recovered.)
+    opt, mkt = Option("call", 100.0, 1.0), Market(139.58, 0.02, 0.3, 0.08)
     quote = price(opt, mkt).price
+    assert 0.0 < quote - 39.58 < price(opt, mkt).error_estimate
     res = implied_vol_detail(opt, mkt, quote)
     assert "error estimate" in res.note
-    again = price(opt, Market(138.95, 0.02, res.vol, 0.08)).price
+    again = price(opt, Market(139.58, 0.02, res.vol, 0.08)).price
     assert abs(again - quote) <= 1e-8 * 100.0
 
 

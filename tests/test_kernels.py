@@ -23,57 +23,78 @@ def _twin_far(s, df_r, df_q, is_put, american):
 def _twin_march(v, x0, h, plan, is_put, american, fitted=False, coef=None):
     """Theta steps solved with scipy's banded solver; American by projected iteration.
 
-    ``fitted`` (American): BDF2 after the implicit start and, in the projected iteration, a
-    held node next to an exercised one sees it through the ghost value ``payoff + (s - u)^2``
+    ``fitted`` (American), written from the docstrings of ``_substitute_fitted``,
+    ``ghost_explicit``, ``damping_band`` and ``band_row``: in the projected iteration a held
+    node next to an exercised one sees it through the ghost value ``payoff + (s - u)^2``
     (``s = sqrt(kappa) h``, ``u^2`` the node's own premium, ``kappa`` from ``coef = (r, q,
-    vol)`` at the cell's middle), written from the docstrings of ``bdf2_step`` and
-    ``_substitute_fitted``.
+    vol)`` at the cell's middle); the next step's explicit half sees that ghost too; and the
+    rows within 1.5 cells of the cells the boundary sweeps in a step (from the boundary of
+    the level before, located by the kernel ``locate_boundary``, to its linear extrapolation)
+    blend BDF2 in with a weight falling linearly from one to zero.
     """
     v = v.copy()
     v_prev = v.copy()
     n = v.size
+    x = x0 + h * np.arange(n)
+    bnd = []
+    ghost = None  # (node, u, kappa) of the level before
     for k in range(plan.dt.size):
-        s_nodes = np.exp(x0 + h * np.arange(n)) * plan.shift[k]
+        s_nodes = np.exp(x) * plan.shift[k]
         payoff = np.maximum((1 - s_nodes) if is_put else (s_nodes - 1), 0.0)
         s_lo, s_hi = s_nodes[0], s_nodes[-1]
-        ae, ai = (1 - plan.theta[k]) * plan.dt[k], plan.theta[k] * plan.dt[k]
+        dt = plan.dt[k]
+        ae, ai = (1 - plan.theta[k]) * dt, plan.theta[k] * dt
         lo, di, up = plan.lo[k], plan.di[k], plan.up[k]
         vl, vh = (_twin_far(s, plan.df_r[k], plan.df_q[k], is_put, american) for s in (s_lo, s_hi))
-        if fitted and k > 0 and plan.theta[k] < 1.0:
-            w = plan.dt[k] / plan.dt[k - 1]
-            a0 = (1 + 2 * w) / (1 + w)
-            ai = plan.dt[k] / a0
-            rhs = (1 + w) / a0 * v[1:-1] - w * w / ((1 + w) * a0) * v_prev[1:-1]
-        else:
-            rhs = v[1:-1] + ae * (lo * v[:-2] + di * v[1:-1] + up * v[2:])
+        rhs = v[1:-1] + ae * (lo * v[:-2] + di * v[1:-1] + up * v[2:])
+        ai_row = np.full(n - 2, ai)
+        if fitted and plan.theta[k] < 1.0:
+            if ghost is not None:
+                j, u, kap = ghost
+                rhs[j - 1] += ae * (lo if is_put else up) * (np.sqrt(kap) * h - u) ** 2
+            if k > 0 and not math.isnan(bnd[-1]):
+                c = ahead = (bnd[-1] - x0) / h
+                ratio = dt / plan.dt[k - 1]
+                if k > 1 and not math.isnan(bnd[-2]):
+                    ahead = c + (bnd[-1] - bnd[-2]) / h * ratio
+                c_lo, c_hi = min(c, ahead), max(c, ahead)
+                j = np.arange(1, n - 1)
+                dist = np.maximum(np.maximum(c_lo - j, j - c_hi), 0.0)
+                phi = np.maximum(1.0 - dist / 1.5, 0.0)
+                a0 = (1 + 2 * ratio) / (1 + ratio)
+                d = phi * a0 + 1 - phi
+                bdf = (1 + ratio) * v[1:-1] - ratio**2 / (1 + ratio) * v_prev[1:-1]
+                rhs = np.where(phi > 0, (phi * bdf + (1 - phi) * rhs) / d, rhs)
+                ai_row = np.where(phi > 0, dt * (0.5 + 0.5 * phi) / d, ai)
         v_prev = v.copy()
-        rhs[0] += ai * lo * vl
-        rhs[-1] += ai * up * vh
+        a_row, b_row, c_row = -ai_row * lo, 1 - ai_row * di, -ai_row * up
+        rhs[0] -= a_row[0] * vl
+        rhs[-1] -= c_row[-1] * vh
         m = n - 2
         ab = np.zeros((3, m))
-        ab[0, 1:] = -ai * up
-        ab[1, :] = 1 - ai * di
-        ab[2, :-1] = -ai * lo
+        ab[0, 1:] = c_row[:-1]
+        ab[1, :] = b_row
+        ab[2, :-1] = a_row[1:]
         new = solve_banded((1, 1), ab, rhs)
         if american:
             # projected Gauss-Seidel to full convergence (Cryer 1971), from the linear solution;
             # the boundary values enter through the neighbours, so take them out of rhs again
-            rhs[0] -= ai * lo * vl
-            rhs[-1] -= ai * up * vh
+            rhs[0] += a_row[0] * vl
+            rhs[-1] += c_row[-1] * vh
             full = np.concatenate(([vl], np.maximum(new, payoff[1:-1]), [vh]))
-            a, b, c = -ai * lo, 1 - ai * di, -ai * up
             if fitted:
                 r, q, vol = coef
-                x_mid = x0 + h * np.arange(n) + (-0.5 * h if is_put else 0.5 * h)
+                x_mid = x + (-0.5 * h if is_put else 0.5 * h)
                 kappa = (r - q * np.exp(x_mid)) / vol**2 * (1.0 if is_put else -1.0)
-                beta = -(a if is_put else c) / b
             for _ in range(100000):
                 old = full.copy()
                 for j in range(1, n - 1):
+                    a, b, c = a_row[j - 1], b_row[j - 1], c_row[j - 1]
                     gs = (rhs[j - 1] - a * full[j - 1] - c * full[j + 1]) / b
                     i = j - 1 if is_put else j + 1
+                    beta = -(a if is_put else c) / b
                     if fitted and 1 <= i <= n - 2 and payoff[i] > 0 and full[i] <= payoff[i] \
-                            and kappa[j] > 0:
+                            and kappa[j] > 0 and 0 < beta < 1:
                         s2 = kappa[j] * h * h
                         gap = gs - payoff[j]
                         if gap + beta * s2 <= 0:
@@ -86,6 +107,20 @@ def _twin_march(v, x0, h, plan, is_put, american, fitted=False, coef=None):
                 if np.max(np.abs(full - old)) < 1e-15:
                     break
             v = full
+            bnd.append(_kernels.locate_boundary(v, payoff, x0, h, is_put) + math.log(plan.shift[k]))
+            if fitted:
+                # the ghosted node: first held node after the exercised run, u below s
+                ghost = None
+                step = 1 if is_put else -1
+                j = 1 if is_put else n - 2
+                while 1 <= j <= n - 2 and payoff[j] > 0 and v[j] <= payoff[j]:
+                    j += step
+                i = j - step
+                if 1 <= j <= n - 2 and 1 <= i <= n - 2 and payoff[i] > 0 and kappa[j] > 0:
+                    beta = -(a_row[j - 1] if is_put else c_row[j - 1]) / b_row[j - 1]
+                    u = np.sqrt(v[j] - payoff[j])
+                    if 0 < beta < 1 and u < np.sqrt(kappa[j]) * h:
+                        ghost = (j, u, kappa[j])
         else:
             v = np.concatenate(([vl], new, [vh]))
     return v
@@ -93,7 +128,7 @@ def _twin_march(v, x0, h, plan, is_put, american, fitted=False, coef=None):
 
 @pytest.fixture
 def small_case():
-    t, r, q, vol, xs = 0.5, 0.05, 0.02, 0.3, math.log(0.95)
+    t, r, q, vol, xs = 0.5, 0.05, 0.07, 0.3, math.log(0.95)  # q > r: calls exercised early too
     sd = vol * math.sqrt(t)
     space = build_space_grid(xs, sd, (r - q - vol * vol / 2) * t, width_sd=4.0, points_per_sd=6)
     time = build_time_grid(t, 8)
@@ -117,7 +152,8 @@ def test_march_direct_matches_numpy_twin(small_case, is_put: bool, american: boo
 
 
 @pytest.mark.parametrize("is_put", [True, False])
-def test_march_psor_matches_direct_kernel_and_twin(small_case, is_put: bool) -> None:
+@pytest.mark.parametrize("fitted", [False, True])
+def test_march_psor_matches_direct_kernel_and_twin(small_case, is_put: bool, fitted: bool) -> None:
     # common practice: PSOR converges to the unique solution of the same problem.
     space, time, plan, coef = small_case
     payoff = payoff_on(space, is_put)
@@ -126,10 +162,15 @@ def test_march_psor_matches_direct_kernel_and_twin(small_case, is_put: bool) -> 
     iters = np.zeros(plan.dt.size, dtype=np.int64)
     failed = _kernels.march_psor(v, np.exp(space.x), space.x_min, space.h, plan.dt, plan.theta,
                                  plan.lo, plan.di, plan.up, plan.df_r, plan.df_q, plan.shift, plan.scale,
-                                 is_put, True, bnd, -1.0, 1e-14, 100000, iters)
+                                 is_put, True, bnd, -1.0, 1e-14, 100000, iters, fitted)
     assert failed == -1 and iters.min() >= 1
-    twin = _twin_march(payoff, space.x_min, space.h, plan, is_put, True)
+    twin = _twin_march(payoff, space.x_min, space.h, plan, is_put, True, fitted, coef)
     np.testing.assert_allclose(v, twin, rtol=0, atol=1e-11)
+    direct = payoff.copy()
+    _kernels.march_direct(direct, np.exp(space.x), space.x_min, space.h, plan.dt, plan.theta,
+                          plan.lo, plan.di, plan.up, plan.df_r, plan.df_q, plan.shift, plan.scale,
+                          is_put, True, np.empty(plan.dt.size), fitted)
+    np.testing.assert_allclose(v, direct, rtol=0, atol=1e-11)
 
 
 def test_locate_boundary_matches_twin() -> None:

@@ -129,7 +129,7 @@ def _decoded(path: Path) -> np.ndarray:
     return np.asarray(mpimg.imread(path))
 
 
-@pytest.mark.parametrize("method", ["direct", "fitted"])
+@pytest.mark.parametrize("method", ["direct", "psor"])
 def test_boundary_figure_shades_and_labels_regions_strike_and_spot(tmp_path: Path, method: str) -> None:
     # common practice: what the issue asks the figure to show (regions shaded and labelled,
     # strike and spot drawn), the caution in smaller type than the axis labels, and a

@@ -11,7 +11,7 @@ import math
 
 import pytest
 
-from stopline import Market, Option, price
+from stopline import DirectSweep, Market, Option, price
 from stopline.reference import perpetual_american
 
 from ._bsm import bsm
@@ -102,19 +102,23 @@ def test_presets_agree_in_the_low_vol_corner(accuracy: str) -> None:
 
 def test_unreliable_gamma_is_flagged_and_fitted_theta_matches_the_expiry_derivative() -> None:
     # Merton (1973): an American option is worth at least as much with a longer life, so its
-    # calendar theta is <= 0. A long, very volatile call deep in the money: Crank-Nicolson's
-    # undamped oscillations near the exercise boundary spoil its gamma (own computation: the
-    # two grids' gammas differ by 72 %, theta comes out +5.3), and the result says so; the
-    # fitted method's theta agrees with a central difference of prices in the expiry
-    # (common practice) to 1 %.
+    # calendar theta is <= 0. A long, very volatile call deep in the money: plain projected
+    # Crank-Nicolson's undamped oscillations near the exercise boundary spoil its gamma (own
+    # computation: the two grids' gammas differ by 72 %, theta comes out +5.3), and the result
+    # says so. With the fitted boundary (the default) nothing is flagged and theta agrees with
+    # a central difference of prices in the expiry (common practice) at every preset. Here
+    # theta is a small difference of large terms (1/2 vol^2 S^2 gamma is 13.5 against a theta
+    # of -0.75), so 1 % of theta asks gamma for 0.06 %; measured 0.16 % / 1.9 % / 0.8 % at
+    # fast / standard / fine (the presets' own prices differ from each other by 1e-8 x K).
     opt, mkt = Option("call", 100.0, 10.0), Market(300.0, 0.02, 1.0, div_yield=0.05)
-    cn = price(opt, mkt, greeks="grid")
+    cn = price(opt, mkt, greeks="grid", method=DirectSweep(fitted=False))
     assert any("gammas differ" in w for w in cn.stats.warnings)
-    fit = price(opt, mkt, greeks="grid", method="fitted")
-    assert not any("gammas differ" in w for w in fit.stats.warnings)
     d = 1e-3
-    up, dn = (price(Option("call", 100.0, 10.0 + e), mkt, greeks="grid", method="fitted",
-                    accuracy="fine").price for e in (d, -d))
-    fd_theta = -(up - dn) / (2 * d)
-    assert fit.theta <= 0.0
-    assert fit.theta == pytest.approx(fd_theta, rel=1e-2)
+    for acc in ("fast", "standard", "fine"):
+        fit = price(opt, mkt, greeks="grid", accuracy=acc)
+        assert not any("gammas differ" in w for w in fit.stats.warnings)
+        up, dn = (price(Option("call", 100.0, 10.0 + e), mkt, greeks="grid",
+                        accuracy=acc).price for e in (d, -d))
+        fd_theta = -(up - dn) / (2 * d)
+        assert fit.theta <= 0.0
+        assert fit.theta == pytest.approx(fd_theta, rel=2.5e-2), acc

@@ -44,7 +44,7 @@ def test_profile_refuses_an_expired_option() -> None:
         value_profile(Option("put", 100.0, 0.0), Market(100.0, 0.05, 0.2))
 
 
-@pytest.mark.parametrize("method", ["direct", "fitted"])
+@pytest.mark.parametrize("method", ["direct", "psor"])
 @pytest.mark.parametrize(
     "opt,mkt",
     [

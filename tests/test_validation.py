@@ -99,7 +99,7 @@ def test_independent_sections_pass(run) -> None:
 
 def test_speed_accuracy_points(run) -> None:
     fams = {p.family for p in run.frontier}
-    solvers = {"PDE (stopline, method 'direct')", "PDE (stopline, method 'fitted')"}
+    solvers = {"PDE (stopline, method 'direct')", "PDE (stopline, method 'direct-plain')"}
     assert solvers | {"Leisen-Reimer (extrapolated)", "CRR-BS (extrapolated)"} <= fams
     for family in solvers:
         pde = {p.setting: p for p in run.frontier if p.family == family}
@@ -161,10 +161,11 @@ def test_full_sample_is_large_and_on_the_typical_domain() -> None:
 
 def test_sample_reports_each_preset_with_errors_and_time(run) -> None:
     # The issue: RMS and max relative error of each preset, with the time taken, for the
-    # default and the fitted solver, beside trees and both approximations.
+    # default solver and, for comparison, the plain (unfitted) sweep, beside trees and both
+    # approximations.
     from stopline.pricing import PRESETS
 
-    for family in ("PDE (stopline, method 'direct')", "PDE (stopline, method 'fitted')"):
+    for family in ("PDE (stopline, method 'direct')", "PDE (stopline, method 'direct-plain')"):
         pts = {p.setting: p for p in run.frontier if p.family == family}
         assert set(pts) == set(PRESETS)
         for p in pts.values():

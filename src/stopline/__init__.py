@@ -6,7 +6,7 @@ from .batch import price_many
 from .contract import Option
 from .crosscheck import CheckSettings, Tolerance, check_row, run_crosscheck
 from .errors import ConvergenceError, InputError, StoplineError
-from .exercise import METHODS, DirectSweep, FittedSweep, ProjectedSOR
+from .exercise import METHODS, DirectSweep, ProjectedSOR
 from .implied import ImpliedVolError, ImpliedVolResult, implied_vol, implied_vol_detail
 from .market import Market, parse_dividends
 from .pricing import PRESETS, ExerciseBoundary, GridSpec, Result, SolveStats, price
@@ -31,7 +31,6 @@ __all__ = [
     "PRESETS",
     "METHODS",
     "DirectSweep",
-    "FittedSweep",
     "ProjectedSOR",
     "StoplineError",
     "InputError",

@@ -179,35 +179,322 @@ def locate_boundary(v, payoff, x0, h, is_put):
 
 
 @njit(cache=True)
-def bdf2_step(k, dt, theta, fitted):
-    """Whether step ``k`` is a BDF2 step, and its coefficients ``(c1, c2, ai)``.
+def locate_boundary_tangent(v, t, payoff, x0, h, is_put):
+    """Derivative of :func:`locate_boundary` for a derivative ``t`` of ``v`` (payoff fixed):
+    the derivative of the root of the line through the two square-root gaps; zero where the
+    root is clamped or there is no boundary."""
+    n = v.shape[0]
+    if is_put:
+        j = 1
+        while j < n - 1 and payoff[j] > 0.0 and v[j] <= payoff[j]:
+            j += 1
+        if j == 1 or j >= n - 2:
+            return 0.0
+        step = h
+    else:
+        j = n - 2
+        while j > 0 and payoff[j] > 0.0 and v[j] <= payoff[j]:
+            j -= 1
+        if j == n - 2 or j <= 1:
+            return 0.0
+        step = -h
+    i = 1 if (j + 3 <= n - 1 if is_put else j - 3 >= 0) else 0
+    sgn = 1 if is_put else -1
+    ja = j + sgn * i
+    jb = j + sgn * (i + 1)
+    ga = v[ja] - payoff[ja]
+    gb = v[jb] - payoff[jb]
+    sa = math.sqrt(ga) if ga > 0.0 else 0.0
+    sb = math.sqrt(gb) if gb > 0.0 else 0.0
+    if not sb > sa:
+        return 0.0
+    pos = i - sa / (sb - sa)
+    if pos < -3.0 or pos > 0.0:
+        return 0.0
+    x = x0 + j * h + pos * step
+    if is_put:
+        if x > x0 + (j - 1) * h - math.log(1.0 - payoff[j - 1]):
+            return 0.0
+    elif x < x0 + (j + 1) * h - math.log(1.0 + payoff[j + 1]):
+        return 0.0
+    dsa = t[ja] / (2.0 * sa) if sa > 0.0 else 0.0
+    dsb = t[jb] / (2.0 * sb)
+    return -(dsa * sb - sa * dsb) / ((sb - sa) * (sb - sa)) * step
 
-    With ``fitted`` (American options in frame "x"), every step that is not one of the
-    implicit Rannacher half steps and has a step before it in this march is the two-step
-    backward differentiation formula on variable steps: with ``w = dt_k / dt_{k-1}`` and
-    ``a0 = (1 + 2w) / (1 + w)``,
 
-        (1 - (dt_k / a0) L) v_new = c1 v_old - c2 v_older,
-        c1 = (1 + w) / a0,  c2 = w^2 / ((1 + w) a0).
+#: Half-width, in cells, of the band of rows around the exercise boundary where a fitted
+#: march blends BDF2 into its Crank-Nicolson rows (:func:`damping_band`). Measured over 1200
+#: typical contracts (``benchmarks/accuracy_study.py``): 1.0 leaves 8.9e-7 x K at "standard",
+#: 1.5 3.6e-7, 2.5 4.5e-7, 4.0 6.4e-7; a band of whole rows switched on and off (not
+#: weighted) leaves 1e-6 to 9e-6.
+BAND_HALF_WIDTH = 1.5
+SWEEP_FACTOR = 1.0
 
-    Unlike Crank-Nicolson it damps the high frequencies that the moving kink of the
-    exercise constraint feeds in at every step (it is L-stable), so its time error is a
-    smooth function of the step and Richardson extrapolation removes it (measured: the
-    single-grid error times ``m^2`` stays within 3 % from 40 to 300 levels, where Crank-
-    Nicolson's changes sign from one level count to the next). Returns
-    ``(False, 0, 0, theta_k dt_k)`` for a theta step.
+
+@njit(cache=True)
+def damping_band(k, dt, theta, bnd, x0, h, n):
+    """The rows that step ``k`` of a fitted march damps, ``(j0, j1, c_lo, c_hi)``.
+
+    They are the rows the exercise boundary sweeps during the step, from where it was at the
+    level before (``bnd[k - 1]``) to where it is headed (extrapolated linearly from the two
+    levels before), both in cells from ``x0`` (``c_lo <= c_hi``), and
+    :data:`BAND_HALF_WIDTH` cells either side: where the exercise constraint, moving across
+    the nodes, disturbs the solution at every step. Crank-Nicolson does not damp such
+    disturbances (its amplification factor tends to -1 for the stiff components), so they
+    ring and the time error jumps about with the step, which spoils Richardson
+    extrapolation; blending the L-stable BDF2 into those rows damps them where they arise,
+    while every other row stays Crank-Nicolson. The band is empty (``j0 > j1``) for an
+    implicit (Rannacher) step, the first step, or no boundary.
 
     References
     ----------
-    Hairer, E. and Wanner, G. (1996), Solving Ordinary Differential Equations II, Springer
-    (variable-step BDF2); Oosterlee, C. W. (2003), On multigrid for linear complementarity
-    problems with application to American-style options, Electron. Trans. Numer. Anal. 15.
+    Rannacher, R. (1984), Finite element solution of diffusion problems with irregular data,
+    Numer. Math. 43 (damping where the data are not smooth); Hairer, E. and Wanner, G.
+    (1996), Solving Ordinary Differential Equations II, Springer (variable-step BDF2).
     """
-    if fitted and k > 0 and theta[k] < 1.0:
-        w = dt[k] / dt[k - 1]
-        a0 = (1.0 + 2.0 * w) / (1.0 + w)
-        return True, (1.0 + w) / a0, w * w / ((1.0 + w) * a0), dt[k] / a0
-    return False, 0.0, 0.0, theta[k] * dt[k]
+    if k == 0 or theta[k] >= 1.0 or math.isnan(bnd[k - 1]):
+        return 1, 0, 0.0, 0.0
+    c_lo = c_hi = (bnd[k - 1] - x0) / h
+    if k >= 2 and not math.isnan(bnd[k - 2]):
+        ahead = c_lo + SWEEP_FACTOR * (bnd[k - 1] - bnd[k - 2]) / h * (dt[k] / dt[k - 1])
+        if ahead < c_lo:
+            c_lo = ahead
+        else:
+            c_hi = ahead
+    j0 = max(1, int(math.floor(c_lo - BAND_HALF_WIDTH)) + 1)
+    j1 = min(n - 2, int(math.ceil(c_hi + BAND_HALF_WIDTH)) - 1)
+    return j0, j1, c_lo, c_hi
+
+
+@njit(cache=True)
+def damping_band_tangent(k, dt, bnd, h, d1, d2):
+    """Derivatives ``(dc_lo, dc_hi)`` of the swept cells of :func:`damping_band` for
+    derivatives ``d1``, ``d2`` of the boundary at the two levels before."""
+    dc = d1 / h
+    if k >= 2 and not math.isnan(bnd[k - 2]):
+        r = dt[k] / dt[k - 1]
+        dahead = dc + SWEEP_FACTOR * (d1 - d2) / h * r
+        if (bnd[k - 1] - bnd[k - 2]) * r < 0.0:
+            return dahead, dc
+        return dc, dahead
+    return dc, dc
+
+
+@njit(cache=True)
+def band_row(j, c_lo, c_hi, k, dt):
+    """Blend of row ``j`` in the damping band: ``(phi, d, ai, w)``.
+
+    The row is ``phi`` times the variable-step BDF2 equation plus ``1 - phi`` times the
+    Crank-Nicolson one, each written as an approximation of ``v_tau - L v`` (so the blend is
+    second order too), with the weight ``phi`` one on the swept cells ``[c_lo, c_hi]`` and
+    falling linearly to zero :data:`BAND_HALF_WIDTH` cells beyond (a continuous function of
+    where the boundary sits). With ``w = dt_k / dt_{k-1}`` and ``a0 = (1 + 2w) / (1 + w)``,
+    multiplied by ``dt_k`` and divided by ``d = phi a0 + 1 - phi`` it reads
+
+        (1 - ai L) v_new = [phi ((1 + w) v_old - w^2 / (1 + w) v_older)
+                            + (1 - phi) (v_old + dt/2 L v_old)] / d,
+        ai = dt (phi + (1 - phi) / 2) / d.
+    """
+    dist = c_lo - j if j < c_lo else (j - c_hi if j > c_hi else 0.0)
+    phi = 1.0 - dist / BAND_HALF_WIDTH
+    w = dt[k] / dt[k - 1]
+    a0 = (1.0 + 2.0 * w) / (1.0 + w)
+    d = phi * a0 + 1.0 - phi
+    return phi, d, dt[k] * (0.5 + 0.5 * phi) / d, w
+
+
+@njit(cache=True)
+def _pivot_map(a, b, c):
+    """The map of the reciprocal pivots of constant rows, ``w -> 1 / (b - a c w)``, as a
+    Moebius map: ``(ok, ws, wp, kz)`` with ``ws`` its attracting fixed point, ``wp`` the other
+    one and ``kz = ws / wp``, so that ``z = (w - ws) / (w - wp)`` is multiplied by ``kz`` at
+    every row. A run of pivots then needs no division that waits for the one before
+    (``w = (ws - z wp) / (1 - z)``: the divisions overlap in the pipeline). ``ok`` is False
+    when the map has no two real fixed points (then the pivots are iterated)."""
+    p = a * c
+    disc = b * b - 4.0 * p
+    if not (p > 0.0 and disc > 0.0):
+        return False, 0.0, 0.0, 0.0
+    ws = 2.0 / (b + math.sqrt(disc))
+    wp = 1.0 / (p * ws)
+    return True, ws, wp, ws / wp
+
+
+@njit(cache=True, fastmath={"contract"})
+def _eliminate_down(rhs, w, aw, a, b, c, ga, gb, gc, j0, j1, keep_w):
+    """Eliminate the upper diagonal from the top (a put's sweep): afterwards
+    ``v_j = rhs_j - aw_j v_{j-1}`` (``rhs`` scaled by the pivot ``w_j``).
+
+    Rows ``j0..j1`` have their own coefficients ``(ga, gb, gc)``, the others ``(a, b, c)``.
+    The pivots of a run of constant rows follow the closed form of :func:`_pivot_map`; once
+    they are within rounding of its fixed point the sweep goes on without a division, two
+    rows at a time (which halves the serial latency of its recurrence), up to the band or the
+    end.
+    ``keep_w`` stores every pivot (the tangent march needs them).
+    """
+    n = rhs.shape[0]
+    j = n - 2
+    r = 0.0
+    wn = 0.0  # pivot of the row above (none at the top)
+    an = 0.0  # sub-diagonal coefficient of the row above
+    ok, ws, wp, kz = _pivot_map(a, b, c)
+    z = 0.0
+    chain = False  # whether z holds the pivot of the row above (a constant row)
+    while j >= 1:
+        inb = j0 <= j <= j1
+        aj = ga[j] if inb else a
+        bj = gb[j] if inb else b
+        cj = gc[j] if inb else c
+        f = cj * wn
+        if chain and not inb:
+            z *= kz
+            wj = (ws - z * wp) / (1.0 - z)
+        else:
+            wj = 1.0 / (bj - f * an)
+            chain = ok and not inb
+            if chain:
+                z = (wj - ws) / (wj - wp)
+        if inb:
+            chain = False
+        if chain:
+            fixed = abs(z) < 1e-18
+            if fixed:
+                wj = ws
+        else:
+            fixed = (not inb) and wj == wn and an == a
+        w[j] = wj
+        aw[j] = aj * wj
+        r = rhs[j] - f * r
+        rhs[j] = r * wj
+        wn = wj
+        an = aj
+        j -= 1
+        if fixed:
+            stop = j1 if (j0 <= j1 and j1 <= j) else 0
+            awc = a * wj
+            fc = c * wj
+            f2 = fc * fc
+            i = j
+            while i >= stop + 2:
+                g = rhs[i - 1] - fc * rhs[i]
+                ri = rhs[i] - fc * r
+                r = g + f2 * r
+                aw[i] = awc
+                aw[i - 1] = awc
+                if keep_w:
+                    w[i] = wj
+                    w[i - 1] = wj
+                rhs[i] = ri * wj
+                rhs[i - 1] = r * wj
+                i -= 2
+            if i == stop + 1:
+                aw[i] = awc
+                if keep_w:
+                    w[i] = wj
+                r = rhs[i] - fc * r
+                rhs[i] = r * wj
+                i -= 1
+            j = i
+
+
+@njit(cache=True, fastmath={"contract"})
+def _eliminate_up(rhs, w, aw, a, b, c, ga, gb, gc, j0, j1, keep_w):
+    """Mirror image of :func:`_eliminate_down` (a call's sweep): eliminate the lower diagonal
+    from the bottom, so that ``v_j = rhs_j - aw_j v_{j+1}``."""
+    n = rhs.shape[0]
+    j = 1
+    r = 0.0
+    wn = 0.0
+    cn = 0.0
+    ok, ws, wp, kz = _pivot_map(a, b, c)
+    z = 0.0
+    chain = False
+    while j <= n - 2:
+        inb = j0 <= j <= j1
+        aj = ga[j] if inb else a
+        bj = gb[j] if inb else b
+        cj = gc[j] if inb else c
+        f = aj * wn
+        if chain and not inb:
+            z *= kz
+            wj = (ws - z * wp) / (1.0 - z)
+        else:
+            wj = 1.0 / (bj - f * cn)
+            chain = ok and not inb
+            if chain:
+                z = (wj - ws) / (wj - wp)
+        if inb:
+            chain = False
+        if chain:
+            fixed = abs(z) < 1e-18
+            if fixed:
+                wj = ws
+        else:
+            fixed = (not inb) and wj == wn and cn == c
+        w[j] = wj
+        aw[j] = cj * wj
+        r = rhs[j] - f * r
+        rhs[j] = r * wj
+        wn = wj
+        cn = cj
+        j += 1
+        if fixed:
+            stop = j0 if (j0 <= j1 and j0 >= j) else n - 1
+            awc = c * wj
+            fa = a * wj
+            f2 = fa * fa
+            i = j
+            while i <= stop - 2:
+                g = rhs[i + 1] - fa * rhs[i]
+                ri = rhs[i] - fa * r
+                r = g + f2 * r
+                aw[i] = awc
+                aw[i + 1] = awc
+                if keep_w:
+                    w[i] = wj
+                    w[i + 1] = wj
+                rhs[i] = ri * wj
+                rhs[i + 1] = r * wj
+                i += 2
+            if i == stop - 1:
+                aw[i] = awc
+                if keep_w:
+                    w[i] = wj
+                r = rhs[i] - fa * r
+                rhs[i] = r * wj
+                i += 1
+            j = i
+
+
+@njit(cache=True)
+def _damp_band(rhs, ga, gb, gc, cur, prev, j0, j1, c_lo, c_hi, k, dt, lo, di, up, keep_cn,
+               keep_older):
+    """Blend BDF2 into rows ``j0..j1`` (:func:`band_row`): their coefficients into
+    ``(ga, gb, gc)`` and their right-hand sides (Crank-Nicolson on entry) in place. Where
+    ``keep_cn`` has room (tangents), the Crank-Nicolson right-hand sides and the values of
+    the level before last are kept there and in ``keep_older``."""
+    keep = keep_cn.shape[0] > 0
+    for j in range(j0, j1 + 1):
+        if keep:
+            keep_cn[j] = rhs[j]
+            keep_older[j] = prev[j]
+        phi, d, ai, w = band_row(j, c_lo, c_hi, k, dt)
+        ga[j] = -ai * lo[k]
+        gb[j] = 1.0 - ai * di[k]
+        gc[j] = -ai * up[k]
+        rhs[j] = (phi * ((1.0 + w) * cur[j] - w * w / (1.0 + w) * prev[j])
+                  + (1.0 - phi) * rhs[j]) / d
+
+
+@njit(cache=True)
+def ghost_explicit(ug, kg, h):
+    """The ghost value less the payoff at the exercised neighbour of the ghosted node of a
+    level (``ug``, ``kg`` its ``u`` and ``kappa``, :func:`_substitute_fitted`),
+    ``(s - u)^2`` with ``s = sqrt(kappa) h``: what the explicit half of the next
+    Crank-Nicolson step adds there per unit of the coefficient on the exercised side, so that
+    both halves of the step see the held side's smooth continuation rather than the kink."""
+    g = math.sqrt(kg) * h - ug
+    return g * g
 
 
 @njit(cache=True)
@@ -258,7 +545,6 @@ def ghost_gap(gap, beta, s):
 @njit(cache=True, fastmath={"contract"})
 def _begin_step(
     k, v, ex, payoff, rhs, dt, theta, lo, di, up, df_r, df_q, shift, scale, is_put, american,
-    v_prev, fitted,
 ):
     """What every solver does first in step ``k``: the far-field values, the exercise value
     (recomputed only when the frame's shift or scale changes, so never in frame "x"), and
@@ -268,9 +554,6 @@ def _begin_step(
     sk = shift[k]
     ae = (1.0 - theta[k]) * dt[k]
     ai = theta[k] * dt[k]
-    bdf, c1, c2, ai_bdf = bdf2_step(k, dt, theta, fitted)
-    if bdf:
-        ai = ai_bdf
     lk = lo[k]
     d = di[k]
     u = up[k]
@@ -282,15 +565,11 @@ def _begin_step(
         if scale[k] != 1.0:
             for j in range(n):
                 payoff[j] *= scale[k]
-    if bdf:
-        for j in range(1, n - 1):
-            rhs[j] = c1 * v[j] - c2 * v_prev[j]
-    else:
-        el = ae * lk
-        ed = 1.0 + ae * d
-        eu = ae * u
-        for j in range(1, n - 1):
-            rhs[j] = el * v[j - 1] + ed * v[j] + eu * v[j + 1]
+    el = ae * lk
+    ed = 1.0 + ae * d
+    eu = ae * u
+    for j in range(1, n - 1):
+        rhs[j] = el * v[j - 1] + ed * v[j] + eu * v[j + 1]
     return -ai * lk, 1.0 - ai * d, -ai * u, vl, vh
 
 
@@ -347,10 +626,10 @@ def march_direct_tangents(
     fitted : bool
         American options in frame "x" only (shift and scale all ones): fit the exercise
         boundary inside its cell (ghost value at the first held node,
-        :func:`_substitute_fitted`) and take BDF2 steps after the implicit start
-        (:func:`bdf2_step`). Both make the error a smooth function of the spacing and the
-        step, which Richardson extrapolation needs. False: Crank-Nicolson with the plain
-        projected sweep.
+        :func:`_substitute_fitted`, seen by both halves of each Crank-Nicolson step,
+        :func:`ghost_explicit`) and damp the rows next to it (:func:`damping_band`). Both
+        make the error a smooth function of the spacing and the step, which Richardson
+        extrapolation needs. False: Crank-Nicolson with the plain projected sweep.
 
     Notes
     -----
@@ -383,13 +662,24 @@ def march_direct_tangents(
     n_par = tan.shape[0]
     # fitted: the step writes its values into the buffer of the level before last (free
     # once the right-hand side is formed) and the two buffers swap roles, so that the BDF2
-    # history costs no copy; ``cur`` holds the last level, ``prev`` the one before
+    # history of the damped rows costs no copy; ``cur`` holds the last level, ``prev`` the one
+    # before
     cur = v
     prev = np.empty(n if fitted else 0)
     in_v = True  # whether cur is the caller's array
-    v_old = np.empty(n if (n_par and not fitted) else 0)
+    v_old = np.empty(n if n_par and not fitted else 0)
     t_prev = np.empty((n_par if fitted else 0, n))
     trhs = np.empty(n if n_par else 0)
+    # the damped rows' own coefficients (only rows j0..j1 are read)
+    ga = np.empty(n if fitted else 0)
+    gb = np.empty(n if fitted else 0)
+    gc = np.empty(n if fitted else 0)
+    # tangents of a fitted march: the damped rows' Crank-Nicolson right-hand sides and older
+    # values, and the boundary's derivatives at the last two levels
+    keep_cn = np.empty(n if n_par and fitted else 0)
+    keep_older = np.empty(n if n_par and fitted else 0)
+    d1 = np.zeros(n_par)
+    d2 = np.zeros(n_par)
     jg, ug, kg = -1, 0.0, 0.0
     ka = kb = 0.0
     # the substitution's range, as plain integers (literal arguments would compile a second
@@ -403,51 +693,25 @@ def march_direct_tangents(
                 v_old[j] = cur[j]
         a, b, c, vl, vh = _begin_step(
             k, cur, ex, payoff, rhs, dt, theta, lo, di, up, df_r, df_q, shift, scale, is_put,
-            american, prev, fitted,
+            american,
         )
         nv = prev if fitted else cur  # where this step's values go
-        if fitted and (k == 0 or lo[k] != lo[k - 1] or di[k] != di[k - 1] or up[k] != up[k - 1]):
-            ka, kb = pasting_curvature(lo[k], di[k], up[k], h, is_put)  # per coefficient change
-        j_fixed = 0
+        j0, j1, cb, cb_hi = 1, 0, 0.0, 0.0
+        jgo, ugo, kgo = -1, 0.0, 0.0  # the ghost of the level before
+        if fitted:
+            if k == 0 or lo[k] != lo[k - 1] or di[k] != di[k - 1] or up[k] != up[k - 1]:
+                ka, kb = pasting_curvature(lo[k], di[k], up[k], h, is_put)
+            if theta[k] < 1.0:
+                jgo, ugo, kgo = jg, ug, kg
+                if jg >= 0:
+                    side = lo[k] if is_put else up[k]
+                    rhs[jg] += (1.0 - theta[k]) * dt[k] * side * ghost_explicit(ug, kg, h)
+                j0, j1, cb, cb_hi = damping_band(k, dt, theta, bnd, x0, h, n)
+                _damp_band(rhs, ga, gb, gc, cur, prev, j0, j1, cb, cb_hi, k, dt, lo, di, up,
+                           keep_cn, keep_older)
         if is_put:
-            rhs[n - 2] -= c * vh
-            # eliminate the upper diagonal from the top: v_j = (rhs_j - a v_{j-1}) w_j
-            w[n - 2] = 1.0 / b
-            aw[n - 2] = a * w[n - 2]
-            r = rhs[n - 2]
-            rhs[n - 2] = r * w[n - 2]
-            j = n - 3
-            while j > 0:
-                f = c * w[j + 1]
-                w[j] = 1.0 / (b - f * a)
-                aw[j] = a * w[j]
-                r = rhs[j] - f * r
-                rhs[j] = r * w[j]
-                j -= 1
-                if w[j + 1] == w[j + 2]:
-                    break
-            # the pivots have reached their fixed point: the rest of the sweep is division-free
-            wc = w[j + 1]
-            j_fixed = j
-            awc = a * wc
-            f = c * wc
-            # two nodes at a time: r_{i-1} = (rhs_{i-1} - f rhs_i) + f^2 r_{i+1} depends on the
-            # value two nodes back, which halves the serial latency of the recurrence
-            f2 = f * f
-            i = j
-            while i >= 2:
-                g = rhs[i - 1] - f * rhs[i]
-                ri = rhs[i] - f * r
-                r = g + f2 * r
-                aw[i] = awc
-                aw[i - 1] = awc
-                rhs[i] = ri * wc
-                rhs[i - 1] = r * wc
-                i -= 2
-            if i == 1:
-                aw[1] = awc
-                r = rhs[1] - f * r
-                rhs[1] = r * wc
+            rhs[n - 2] -= (gc[n - 2] if j0 <= n - 2 <= j1 else c) * vh
+            _eliminate_down(rhs, w, aw, a, b, c, ga, gb, gc, j0, j1, n_par > 0)
             nv[0] = vl
             if fitted:
                 jg, ug, kg = _substitute_fitted(
@@ -460,41 +724,8 @@ def march_direct_tangents(
                     nv[j] = rhs[j] - aw[j] * nv[j - 1]
             nv[n - 1] = vh
         else:
-            rhs[1] -= a * vl
-            # eliminate the lower diagonal from the bottom: v_j = (rhs_j - c v_{j+1}) w_j
-            w[1] = 1.0 / b
-            aw[1] = c * w[1]
-            r = rhs[1]
-            rhs[1] = r * w[1]
-            j = 2
-            while j < n - 1:
-                f = a * w[j - 1]
-                w[j] = 1.0 / (b - f * c)
-                aw[j] = c * w[j]
-                r = rhs[j] - f * r
-                rhs[j] = r * w[j]
-                j += 1
-                if w[j - 1] == w[j - 2]:
-                    break
-            wc = w[j - 1]
-            j_fixed = j
-            awc = c * wc
-            f = a * wc
-            f2 = f * f
-            i = j
-            while i <= n - 3:
-                g = rhs[i + 1] - f * rhs[i]
-                ri = rhs[i] - f * r
-                r = g + f2 * r
-                aw[i] = awc
-                aw[i + 1] = awc
-                rhs[i] = ri * wc
-                rhs[i + 1] = r * wc
-                i += 2
-            if i == n - 2:
-                aw[i] = awc
-                r = rhs[i] - f * r
-                rhs[i] = r * wc
+            rhs[1] -= (ga[1] if j0 <= 1 <= j1 else a) * vl
+            _eliminate_up(rhs, w, aw, a, b, c, ga, gb, gc, j0, j1, n_par > 0)
             nv[n - 1] = vh
             if fitted:
                 jg, ug, kg = _substitute_fitted(
@@ -507,18 +738,18 @@ def march_direct_tangents(
                     nv[j] = rhs[j] - aw[j] * nv[j + 1]
             nv[0] = vl
         if n_par:
-            # pivots past the fixed point all equal it
-            if is_put:
-                for i in range(1, j_fixed + 1):
-                    w[i] = w[j_fixed + 1]
-            else:
-                for i in range(j_fixed, n - 1):
-                    w[i] = w[j_fixed - 1]
+            vo = cur if fitted else v_old
+            e = c if is_put else a
+            ge = gc if is_put else ga
             for p in range(n_par):
                 _tangent_step(
-                    k, p, tan, trhs, cur if fitted else v_old, nv, payoff, w, a, c, dt, theta, lo, di, up, dco, dfar,
-                    is_put, american, t_prev, fitted, jg, ug, kg, h, ex,
+                    k, p, tan, trhs, vo, nv, payoff, w, aw, e, dt, theta, lo, di, up, dco,
+                    dfar, is_put, american, t_prev, fitted, jg, ug, kg, h, ex, ge, j0, j1, cb,
+                    cb_hi, jgo, ugo, kgo, bnd, d1[p], d2[p], keep_cn, keep_older,
                 )
+                if fitted:
+                    d2[p] = d1[p]
+                    d1[p] = locate_boundary_tangent(nv, tan[p], payoff, x0, h, is_put)
         if american:
             bnd[k] = locate_boundary(nv, payoff, x0, h, is_put) + math.log(shift[k])
         else:
@@ -534,45 +765,84 @@ def march_direct_tangents(
 
 @njit(cache=True, fastmath={"contract"})
 def _tangent_step(
-    k, p, tan, trhs, v_old, v, payoff, w, a, c, dt, theta, lo, di, up, dco, dfar, is_put,
-    american, t_prev, fitted, jg, ug, kg, h, ex,
+    k, p, tan, trhs, v_old, v, payoff, w, aw, e, dt, theta, lo, di, up, dco, dfar, is_put,
+    american, t_prev, fitted, jg, ug, kg, h, ex, ge, j0, j1, cb, cb_hi, jgo, ugo, kgo, bnd,
+    d1, d2, keep_cn, keep_older,
 ):
     """Advance the derivative ``tan[p]`` through step ``k`` (see :func:`march_direct_tangents`).
 
-    With ``fitted``, BDF2 steps (:func:`bdf2_step`) differentiate alike, and the node ``jg``
-    that took a ghost value (:func:`_substitute_fitted`; ``ug``, ``kg`` its ``u`` and
-    ``kappa``) the linearised quadratic: its row ``a (payoff + G) + b v_j + c v_{j+1} = rhs``
-    with ``G = (s - u)^2``, ``u^2 = v_j - payoff_j`` and ``s = sqrt(kappa) h`` gives
+    ``w``, ``aw`` are the step's pivots and substitution coefficients; ``e`` the coefficient
+    that the elimination removes (super-diagonal for a put, sub-diagonal for a call), ``ge``
+    its values on the damped rows ``j0..j1`` (:func:`damping_band`, swept cells
+    ``cb..cb_hi``).
+
+    With ``fitted``: the damped rows differentiate their blend (:func:`band_row`), the
+    weights included, through the derivatives ``d1``, ``d2`` of the boundary at the two
+    levels before (:func:`locate_boundary_tangent`, :func:`damping_band_tangent`; the
+    damped rows' Crank-Nicolson right-hand sides and older values in ``keep_cn``,
+    ``keep_older``); the ghost of the level
+    before (``jgo``, ``ugo``, ``kgo``) adds the derivative of :func:`ghost_explicit`; and
+    the node ``jg`` that took a ghost value in this step (:func:`_substitute_fitted`;
+    ``ug``, ``kg`` its ``u`` and ``kappa``) the linearised quadratic: its row
+    ``a (payoff + G) + b v_j + c v_{j+1} = rhs`` with ``G = (s - u)^2``,
+    ``u^2 = v_j - payoff_j`` and ``s = sqrt(kappa) h`` gives
     ``(1 + beta (s - u) / u) dv_j = w_j (R_j + ai dl G - 2 a (s - u) ds) - ...`` (``beta =
     -a w_j``, ``R_j`` the eliminated right-hand side, ``dl`` the change of the coefficient
     on the ghost's side).
     """
     n = v.shape[0]
     t = tan[p]
-    bdf, c1, c2, ai = bdf2_step(k, dt, theta, fitted)
     dl = dco[p, 0, k]
     dd = dco[p, 1, k]
     du = dco[p, 2, k]
-    if bdf:
+    ae = (1.0 - theta[k]) * dt[k]
+    ai = theta[k] * dt[k]
+    el = ae * lo[k]
+    ed = 1.0 + ae * di[k]
+    eu = ae * up[k]
+    # explicit half, and the change of the operator on the new values
+    for j in range(1, n - 1):
+        trhs[j] = (
+            el * t[j - 1] + ed * t[j] + eu * t[j + 1]
+            + ae * (dl * v_old[j - 1] + dd * v_old[j] + du * v_old[j + 1])
+            + ai * (dl * v[j - 1] + dd * v[j] + du * v[j + 1])
+        )
+    if fitted and jgo >= 0 and ugo > 0.0:
+        # the ghost of the level before, seen by the explicit half (ghost_explicit)
+        sq = math.sqrt(kgo)
+        dka, dkb = pasting_curvature_tangent(lo[k], di[k], up[k], dl, dd, du, h, is_put)
+        ds = h * (dka + dkb * ex[jgo]) / (2.0 * sq)
+        gap = sq * h - ugo
+        side = lo[k] if is_put else up[k]
+        dside = dl if is_put else du
+        trhs[jgo] += ae * (dside * gap * gap + 2.0 * side * gap * (ds - t[jgo] / (2.0 * ugo)))
+    if fitted:
         tp = t_prev[p]
-        for j in range(1, n - 1):
-            tj = t[j]
-            trhs[j] = c1 * tj - c2 * tp[j] + ai * (dl * v[j - 1] + dd * v[j] + du * v[j + 1])
-            tp[j] = tj
-    else:
-        ae = (1.0 - theta[k]) * dt[k]
-        el = ae * lo[k]
-        ed = 1.0 + ae * di[k]
-        eu = ae * up[k]
-        for j in range(1, n - 1):
-            trhs[j] = (
-                el * t[j - 1] + ed * t[j] + eu * t[j + 1]
-                + ae * (dl * v_old[j - 1] + dd * v_old[j] + du * v_old[j + 1])
-                + ai * (dl * v[j - 1] + dd * v[j] + du * v[j + 1])
-            )
-        if fitted:
-            for j in range(n):
-                t_prev[p, j] = t[j]
+        if j0 <= j1:
+            dc_lo, dc_hi = damping_band_tangent(k, dt, bnd, h, d1, d2)
+        for j in range(j0, j1 + 1):
+            phi, d, aij, wr = band_row(j, cb, cb_hi, k, dt)
+            lv = dl * v[j - 1] + dd * v[j] + du * v[j + 1]
+            cn = trhs[j] - ai * lv  # the Crank-Nicolson row's explicit part
+            trhs[j] = (phi * ((1.0 + wr) * t[j] - wr * wr / (1.0 + wr) * tp[j])
+                       + (1.0 - phi) * cn) / d + aij * lv
+            # the weight moves with the boundary: minus dphi dF/dphi of the row's equation
+            if j < cb:
+                dphi = -dc_lo / BAND_HALF_WIDTH
+            elif j > cb_hi:
+                dphi = dc_hi / BAND_HALF_WIDTH
+            else:
+                dphi = 0.0
+            if dphi != 0.0:
+                a0 = (1.0 + 2.0 * wr) / (1.0 + wr)
+                lnew = lo[k] * v[j - 1] + di[k] * v[j] + up[k] * v[j + 1]
+                if j == jg:  # the exercised neighbour enters through its ghost value
+                    lnew += (lo[k] if is_put else up[k]) * ghost_explicit(ug, kg, h)
+                bdf = (1.0 + wr) * v_old[j] - wr * wr / (1.0 + wr) * keep_older[j]
+                df = (a0 - 1.0) * v[j] - 0.5 * dt[k] * lnew - bdf + keep_cn[j]
+                trhs[j] -= dphi * df / d
+        for j in range(n):
+            tp[j] = t[j]
     # the ghost node's extra terms: right-hand side and the factor on dv_j
     g_add = 0.0
     g_div = 1.0
@@ -581,19 +851,25 @@ def _tangent_step(
         sc = sq * h
         dka, dkb = pasting_curvature_tangent(lo[k], di[k], up[k], dl, dd, du, h, is_put)
         ds = h * (dka + dkb * ex[jg]) / (2.0 * sq)
-        side = a if is_put else c
+        if j0 <= jg <= j1:
+            aig = band_row(jg, cb, cb_hi, k, dt)[2]
+        else:
+            aig = ai
+        side_coef = lo[k] if is_put else up[k]
+        side = -aig * side_coef
         dside = dl if is_put else du
         gap = sc - ug
-        g_add = w[jg] * (ai * dside * gap * gap - 2.0 * side * gap * ds)
+        g_add = w[jg] * (aig * dside * gap * gap - 2.0 * side * gap * ds)
         g_div = 1.0 - side * w[jg] * gap / ug
     tl = dfar[p, 0, k]
     th = dfar[p, 1, k]
     if is_put:
-        trhs[n - 2] -= c * th
+        trhs[n - 2] -= (ge[n - 2] if j0 <= n - 2 <= j1 else e) * th
         r = trhs[n - 2]
         trhs[n - 2] = r * w[n - 2]
         for j in range(n - 3, 0, -1):
-            r = trhs[j] - c * w[j + 1] * r
+            ej = ge[j] if j0 <= j <= j1 else e
+            r = trhs[j] - ej * w[j + 1] * r
             trhs[j] = r * w[j]
         t[0] = tl
         y = tl  # the last value, carried in a register
@@ -603,15 +879,16 @@ def _tangent_step(
             elif j == jg:
                 y = (trhs[j] + g_add) / g_div
             else:
-                y = trhs[j] - a * w[j] * y
+                y = trhs[j] - aw[j] * y
             t[j] = y
         t[n - 1] = th
     else:
-        trhs[1] -= a * tl
+        trhs[1] -= (ge[1] if j0 <= 1 <= j1 else e) * tl
         r = trhs[1]
         trhs[1] = r * w[1]
         for j in range(2, n - 1):
-            r = trhs[j] - a * w[j - 1] * r
+            ej = ge[j] if j0 <= j <= j1 else e
+            r = trhs[j] - ej * w[j - 1] * r
             trhs[j] = r * w[j]
         t[n - 1] = th
         y = th
@@ -621,7 +898,7 @@ def _tangent_step(
             elif j == jg:
                 y = (trhs[j] + g_add) / g_div
             else:
-                y = trhs[j] - c * w[j] * y
+                y = trhs[j] - aw[j] * y
             t[j] = y
         t[0] = tl
 
@@ -752,7 +1029,7 @@ def _substitute_fitted(v, rhs, aw, payoff, start, stop, step, ex, ka, kb, h):
 @njit(cache=True)
 def march_psor(
     v, ex, x0, h, dt, theta, lo, di, up, df_r, df_q, shift, scale, is_put, american, bnd,
-    omega, tol, max_iter, iters,
+    omega, tol, max_iter, iters, fitted,
 ):
     """March ``v`` through all steps with projected successive over-relaxation.
 
@@ -768,6 +1045,13 @@ def march_psor(
         Sweep cap per step.
     iters : ndarray of int64, shape (n_steps,)
         Written: sweeps used per step.
+    fitted : bool
+        The scheme of :func:`march_direct_tangents` with ``fitted``: the ghost of the level
+        before in the explicit half (:func:`ghost_explicit`), the damped rows
+        (:func:`damping_band`), and a held node next to an exercised one seeing it through
+        the ghost value (:func:`_substitute_fitted`); that node is updated by plain
+        Gauss-Seidel (its equation is a quadratic in the square root of its premium,
+        :func:`ghost_gap`), the others are over-relaxed.
 
     Returns
     -------
@@ -782,12 +1066,33 @@ def march_psor(
     n = v.shape[0]
     rhs = np.empty(n)
     payoff = np.empty(n)
+    older = np.empty(n if fitted else 0)  # the level before last
+    old = np.empty(n if fitted else 0)
+    ga = np.empty(n if fitted else 0)
+    gb = np.empty(n if fitted else 0)
+    gc = np.empty(n if fitted else 0)
+    none = np.empty(0)
+    jg, ug, kg = -1, 0.0, 0.0
+    ka = kb = 0.0
     failed = -1
     for k in range(dt.shape[0]):
         a, b, c, vl, vh = _begin_step(
             k, v, ex, payoff, rhs, dt, theta, lo, di, up, df_r, df_q, shift, scale, is_put,
-            american, rhs, False,
+            american,
         )
+        j0, j1 = 1, 0
+        if fitted:
+            if k == 0 or lo[k] != lo[k - 1] or di[k] != di[k - 1] or up[k] != up[k - 1]:
+                ka, kb = pasting_curvature(lo[k], di[k], up[k], h, is_put)
+            if theta[k] < 1.0:
+                if jg >= 0:
+                    side = lo[k] if is_put else up[k]
+                    rhs[jg] += (1.0 - theta[k]) * dt[k] * side * ghost_explicit(ug, kg, h)
+                j0, j1, c_lo, c_hi = damping_band(k, dt, theta, bnd, x0, h, n)
+                _damp_band(rhs, ga, gb, gc, v, older, j0, j1, c_lo, c_hi, k, dt, lo, di, up,
+                           none, none)
+            for j in range(n):
+                old[j] = v[j]
         v[0] = vl
         v[n - 1] = vh
         om = omega
@@ -798,13 +1103,33 @@ def march_psor(
                 rho = 0.999999
             om = 2.0 / (1.0 + math.sqrt(1.0 - rho * rho))
         inv_b = 1.0 / b
+        s_side = -1 if is_put else 1  # where a node's exercised neighbour is
         it = 0
         while True:
             it += 1
             err = 0.0
             for j in range(1, n - 1):
-                gs = (rhs[j] - a * v[j - 1] - c * v[j + 1]) * inv_b
+                inb = j0 <= j <= j1
+                aj = ga[j] if inb else a
+                cj = gc[j] if inb else c
+                ib = 1.0 / gb[j] if inb else inv_b
+                gs = (rhs[j] - aj * v[j - 1] - cj * v[j + 1]) * ib
                 y = v[j] + om * (gs - v[j])
+                if fitted:
+                    i = j + s_side
+                    if 1 <= i <= n - 2 and payoff[i] > 0.0 and v[i] <= payoff[i]:
+                        kap = ka + kb * ex[j]
+                        beta = -(aj if is_put else cj) * ib
+                        if kap > 0.0 and 0.0 < beta < 1.0:
+                            s2 = kap * h * h
+                            gap = gs - payoff[j]
+                            if gap + beta * s2 <= 0.0:
+                                y = payoff[j]
+                            elif gap < s2:
+                                u = ghost_gap(gap, beta, math.sqrt(s2))
+                                y = payoff[j] + u * u
+                            else:
+                                y = gs
                 if american and y < payoff[j]:
                     y = payoff[j]
                 dy = abs(y - v[j])
@@ -822,7 +1147,37 @@ def march_psor(
             bnd[k] = locate_boundary(v, payoff, x0, h, is_put) + math.log(shift[k])
         else:
             bnd[k] = math.nan
+        if fitted:
+            jg, ug, kg = _ghost_of(v, payoff, ex, ka, kb, h, is_put, a, b, c, ga, gb, gc, j0, j1)
+            for j in range(n):
+                older[j] = old[j]
     return failed
+
+
+@njit(cache=True)
+def _ghost_of(v, payoff, ex, ka, kb, h, is_put, a, b, c, ga, gb, gc, j0, j1):
+    """The node of a solved level that took a ghost value (:func:`_substitute_fitted`):
+    ``(j, u, kappa)`` of the first held node after the exercised run, if its exercised
+    neighbour is in the money and ``u`` is below ``s = sqrt(kappa) h``; else
+    ``(-1, 0, 0)``."""
+    n = v.shape[0]
+    step = 1 if is_put else -1
+    j = 1 if is_put else n - 2
+    while 1 <= j <= n - 2 and payoff[j] > 0.0 and v[j] <= payoff[j]:
+        j += step
+    i = j - step
+    if not (1 <= j <= n - 2 and 1 <= i <= n - 2) or not payoff[i] > 0.0:
+        return -1, 0.0, 0.0
+    inb = j0 <= j <= j1
+    side = (ga[j] if inb else a) if is_put else (gc[j] if inb else c)
+    beta = -side / (gb[j] if inb else b)
+    kap = ka + kb * ex[j]
+    if not (kap > 0.0 and 0.0 < beta < 1.0):
+        return -1, 0.0, 0.0
+    u = math.sqrt(v[j] - payoff[j])
+    if u < math.sqrt(kap) * h:
+        return j, u, kap
+    return -1, 0.0, 0.0
 
 
 @njit(cache=True)
@@ -1441,8 +1796,9 @@ def price_pair(
         Written: the fine grid's critical log-moneyness per step, ``strike e^x``, and its
         monotone fit.
     fitted : bool
-        March an American option with the fitted boundary and BDF2 steps (method
-        ``"fitted"``) instead of plain Crank-Nicolson (method ``"direct"``).
+        March an American option with the fitted boundary (the default direct sweep,
+        :func:`march_direct_tangents`) instead of plain projected Crank-Nicolson
+        (``DirectSweep(fitted=False)``).
 
     References
     ----------

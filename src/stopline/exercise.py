@@ -6,12 +6,16 @@ the solver class; :func:`get_method` accepts a name or an instance.
 
 - ``"direct"``: the Brennan-Schwartz sweep, exact and O(n) when the exercise region is one
   interval touching the grid end (vanilla puts and calls with non-negative carry settings).
-- ``"fitted"``: the same sweep with the exercise boundary fitted inside its cell and
-  BDF2 steps after the implicit start (:class:`FittedSweep`); its error is a smooth function
-  of the grid, so the Richardson pair meets the accuracy presets' targets where plain
-  Crank-Nicolson's erratic error near the boundary does not (opt-in).
 - ``"psor"``: projected successive over-relaxation, general but iterative; reports sweeps and
   raises :class:`~stopline.errors.ConvergenceError` at its cap.
+
+Both solve the same discrete problem: Crank-Nicolson steps after a Rannacher start, with the
+exercise boundary fitted inside its cell (American options with flat data and no cash
+dividends; see :func:`stopline.solve.fitted_boundary`), so they agree on the same grid to
+their tolerances. ``DirectSweep(fitted=False)`` and ``ProjectedSOR(fitted=False)`` solve the
+plain projected Crank-Nicolson problem instead (named ``"direct-plain"`` and
+``"psor-plain"``), kept for comparison: near the boundary its error jumps about with the grid,
+so the Richardson pair cannot remove it.
 """
 
 from __future__ import annotations
@@ -26,7 +30,7 @@ from .errors import ConvergenceError, InputError
 from .grid import SpaceGrid
 from .operator import StepPlan
 
-__all__ = ["MarchReport", "DirectSweep", "FittedSweep", "ProjectedSOR", "METHODS", "get_method"]
+__all__ = ["MarchReport", "DirectSweep", "ProjectedSOR", "METHODS", "get_method"]
 
 
 @dataclass(frozen=True)
@@ -59,20 +63,34 @@ class DirectSweep:
     ----------
     fitted : bool
         Where it applies (see :func:`stopline.solve.fitted_boundary`), fit the exercise
-        boundary inside its cell (ghost value at the first held node from smooth pasting)
-        and take BDF2 steps after the implicit start, so that the error is a smooth function
-        of the grid and the Richardson pair removes it (:class:`FittedSweep`). ``False``
-        (default) solves the plain Crank-Nicolson complementarity problem, the one
-        :class:`ProjectedSOR` solves.
+        boundary (default). Plain projected Crank-Nicolson does not damp what the exercise
+        constraint, moving across the nodes, feeds in at every step, and the payoff's kink
+        at the boundary spoils the stencil next to it, so near the boundary its error jumps
+        about with the grid and the Richardson pair cannot remove it (measured over 1200
+        typical contracts at "standard": max 1.8e-5 x K, 25 contracts beyond the 1e-6 x K
+        target, and still 7e-6 x K with four times the time levels). Fitted, the first held
+        node sees its exercised neighbour through the held side's smooth continuation (a
+        ghost value from smooth pasting, in both halves of each step), and the few rows the
+        boundary sweeps in a step blend in BDF2, which damps what it feeds in
+        (:func:`stopline._kernels.damping_band`); every other row is Crank-Nicolson. Max
+        5.4e-7 x K on the same set, every contract within the target. ``False`` solves the
+        plain problem (named ``"direct-plain"``).
 
     References
     ----------
     Brennan, M. J. and Schwartz, E. S. (1977), The valuation of American put options,
-    Journal of Finance 32(2).
+    Journal of Finance 32(2). Rannacher, R. (1984), Finite element solution of diffusion
+    problems with irregular data, Numer. Math. 43. LeVeque, R. J. and Li, Z. (1994), The
+    immersed interface method for elliptic equations with discontinuous coefficients and
+    singular sources, SIAM J. Numer. Anal. 31(4).
     """
 
-    fitted: bool = False
-    name: str = "direct"
+    fitted: bool = True
+
+    @property
+    def name(self) -> str:
+        """``"direct"``, or ``"direct-plain"`` without the fitted boundary."""
+        return "direct" if self.fitted else "direct-plain"
 
     def march(
         self, v: FloatArray, ex: FloatArray, space: SpaceGrid, plan: StepPlan,
@@ -94,32 +112,6 @@ class DirectSweep:
 
 
 @dataclass(frozen=True)
-class FittedSweep(DirectSweep):
-    """The direct sweep with a fitted exercise boundary and BDF2 steps (method ``"fitted"``).
-
-    Crank-Nicolson does not damp the high frequencies that the exercise constraint's moving
-    kink feeds in at every step, so near the boundary its error changes erratically with the
-    grid and Richardson extrapolation over the pair cannot remove it (measured over 1200
-    typical contracts at "standard": max 1.8e-5 x K, 25 contracts beyond 1e-6 x K, and
-    still 7e-6 x K with four times the time levels). This method keeps the Rannacher start
-    and the Brennan-Schwartz sweep, fits the boundary inside its cell (smooth pasting) and
-    takes L-stable BDF2 steps after the start: max 6.4e-7 x K on the same set. Where the
-    fit does not apply (cash dividends, term-structure breakpoints, frame "y") it is the
-    plain direct sweep.
-
-    References
-    ----------
-    Brennan, M. J. and Schwartz, E. S. (1977), The valuation of American put options,
-    Journal of Finance 32(2). Oosterlee, C. W. (2003), On multigrid for linear
-    complementarity problems with application to American-style options, Electron. Trans.
-    Numer. Anal. 15 (BDF2 for American options).
-    """
-
-    fitted: bool = True
-    name: str = "fitted"
-
-
-@dataclass(frozen=True)
 class ProjectedSOR:
     """Projected successive over-relaxation (Cryer 1971).
 
@@ -132,12 +124,21 @@ class ProjectedSOR:
         A step stops when the largest change in one sweep is below ``tol`` (value / strike).
     max_iter : int
         Sweep cap per step; reaching it raises :class:`ConvergenceError`.
+    fitted : bool
+        Where it applies (see :func:`stopline.solve.fitted_boundary`), solve the scheme of
+        the fitted direct sweep (ghost value at the first held node, damped rows next to the
+        boundary), so that both methods solve the same discrete problem.
     """
 
     omega: float | None = None
     tol: float = 1e-12
     max_iter: int = 20_000
-    name: str = "psor"
+    fitted: bool = True
+
+    @property
+    def name(self) -> str:
+        """``"psor"``, or ``"psor-plain"`` without the fitted boundary."""
+        return "psor" if self.fitted else "psor-plain"
 
     def __post_init__(self) -> None:
         if self.omega is not None and not 0.0 < self.omega < 2.0:
@@ -152,8 +153,9 @@ class ProjectedSOR:
         is_put: bool, american: bool, fitted: bool = False,
     ) -> MarchReport:
         """Advance ``v`` (in place) through every step of ``plan``; ``ex = exp(space.x)``;
-        ``fitted`` is ignored: projected SOR solves the plain Crank-Nicolson problem (a
-        nonlinear ghost value makes its sweeps cycle between holding and exercising a node)."""
+        ``fitted``: whether the problem allows fitting the exercise boundary (see
+        :func:`stopline.solve.fitted_boundary`); it is done when this solver's ``fitted``
+        is set too."""
         n_steps = plan.dt.shape[0]
         bnd = np.empty(n_steps)
         iters = np.zeros(n_steps, dtype=np.int64)
@@ -161,7 +163,7 @@ class ProjectedSOR:
         failed = _kernels.march_psor(
             v, ex, space.x_min, space.h, plan.dt, plan.theta, plan.lo, plan.di, plan.up,
             plan.df_r, plan.df_q, plan.shift, plan.scale, is_put, american, bnd, omega, self.tol,
-            self.max_iter, iters,
+            self.max_iter, iters, fitted and self.fitted,
         )
         if failed >= 0:
             raise ConvergenceError(
@@ -175,7 +177,6 @@ class ProjectedSOR:
 #: Name -> solver class.
 METHODS: dict[str, type[DirectSweep] | type[ProjectedSOR]] = {
     "direct": DirectSweep,
-    "fitted": FittedSweep,
     "psor": ProjectedSOR,
 }
 

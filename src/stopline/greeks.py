@@ -16,8 +16,7 @@ How each number in :class:`~stopline.pricing.Result` is computed:
   option is held, ``V_t = -(1/2 s^2 S^2 gamma + (r - q) S delta - r V)``; where it is
   exercised, zero. It is as accurate as delta and gamma; a difference quotient over the last
   (longest, on a graded grid) time step would be first order.
-- **vega, rho** (American with flat inputs and no cash dividends, methods ``"direct"`` and
-  ``"fitted"``): the exact derivatives of the discrete solution with respect to the
+- **vega, rho** (American with flat inputs and no cash dividends, the direct sweep): the exact derivatives of the discrete solution with respect to the
   volatility and the rate, marched alongside it on the same two grids (tangent-linear: each
   step's pivots and exercised nodes are reused, no bump size enters; see
   :func:`stopline.solve.solve_with_tangents` and :func:`stopline._kernels.price_pair`), read at

@@ -96,7 +96,7 @@ class AccuracyPreset:
 PRESETS: dict[str, AccuracyPreset] = {
     "fast": AccuracyPreset("fast", 1e-4, 16.0, 4.0, 32, 0.04),
     "standard": AccuracyPreset("standard", 1e-6, 20.0, 5.5, 100, 0.008),
-    "fine": AccuracyPreset("fine", 1e-8, 120.0, 7.0, 600, 0.0015),
+    "fine": AccuracyPreset("fine", 1e-8, 120.0, 7.0, 500, 0.002),
 }
 
 
@@ -287,7 +287,7 @@ def _resolve_grid(
     else:
         name = check_choice("accuracy", accuracy, tuple(PRESETS))
         preset = PRESETS[name]
-        width, levels = preset.width_sd, _coarse_levels(preset)
+        width, levels = preset.width_sd, _coarse_levels(preset, sd, problem.american)
         scale = _decay_length(problem.rate, mu, problem.vol, problem.is_put) \
             if problem.american else math.inf
         kwargs = {
@@ -436,9 +436,22 @@ def _decay_length(rate: float, mu: float, vol: float, is_put: bool | None = None
     return min(lengths, default=math.inf)
 
 
-def _coarse_levels(preset: AccuracyPreset) -> int:
-    """Graded time intervals of the coarse grid of a preset's pair (frame "x")."""
-    return preset.time_levels // 2
+#: An American life whose ``vol sqrt(T)`` exceeds this gets more time levels (a whole
+#: multiple, at most :data:`MAX_LEVEL_MULTIPLE`): over such a life the exercise boundary crosses
+#: many cells per step, and although the price holds its target, gamma and the theta built from
+#: it lag (own computation: a 10-year put at vol 1, S = 100, K = 300 has theta 13 % off at
+#: "standard" with 100 levels, 0.8 % with 200, 0.07 % with 280).
+LONG_LIFE_SD = 1.5
+MAX_LEVEL_MULTIPLE = 4
+
+
+def _coarse_levels(preset: AccuracyPreset, sd: float = 0.0, american: bool = False) -> int:
+    """Graded time intervals of the coarse grid of a preset's pair (frame "x"); ``sd`` is
+    ``vol sqrt(T)`` (see :data:`LONG_LIFE_SD`)."""
+    m = 1
+    if american and sd > LONG_LIFE_SD:
+        m = min(math.ceil(sd / LONG_LIFE_SD), MAX_LEVEL_MULTIPLE)
+    return m * (preset.time_levels // 2)
 
 
 def _preset_layout(
@@ -643,14 +656,13 @@ def price(
         Spot, rate, yield, vol and valuation date.
     accuracy : {"fast", "standard", "fine"}
         Target absolute error relative to the strike over typical contracts: 1e-4, 1e-6, 1e-8.
-        Met over 1200 typical American contracts by ``method="fitted"``; the default
-        Crank-Nicolson sweep misses it on about 2 % of them, where the exercise boundary
-        makes its error erratic (``benchmarks/accuracy_study.py``; README, Accuracy).
-    method : {"direct", "fitted", "psor"} or a solver instance
+        Met over 1200 typical American contracts, every one within its target
+        (``benchmarks/accuracy_study.py``; README, Accuracy).
+    method : {"direct", "psor"} or a solver instance
         Solver of the early-exercise constraint (see :mod:`stopline.exercise`): ``"direct"``
-        Brennan-Schwartz on Crank-Nicolson steps (default), ``"fitted"`` the same sweep with
-        the boundary fitted in its cell and BDF2 steps after the Rannacher start, ``"psor"``
-        projected SOR on Crank-Nicolson steps.
+        the Brennan-Schwartz sweep (default), ``"psor"`` projected SOR. Both solve the same
+        Crank-Nicolson steps after a Rannacher start, with the exercise boundary fitted in
+        its cell where it applies (:class:`~stopline.exercise.DirectSweep`).
     grid : GridSpec or (space_points, time_levels), optional
         Expert override of the finer grid; ``accuracy`` is then ignored.
     greeks : {"full", "grid", "vega"}
@@ -864,18 +876,17 @@ def _gamma_warning(
 ) -> list[str]:
     """Gamma (and theta, which the PDE builds from it) is unreliable when the two grids'
     gammas differ by more than 5 % and that difference moves theta by more than 1e-3 of
-    the strike per year. Crank-Nicolson does that where the exercise boundary feeds it
-    oscillations it does not damp (long, very volatile American lives). Measured on the
-    benchmark's 200 typical contracts: it fires on one at fast and one at standard, none at
-    fine."""
+    the strike per year. Plain projected Crank-Nicolson (``DirectSweep(fitted=False)``) does
+    that where the exercise boundary feeds it oscillations it does not damp (long, very
+    volatile American lives); the fitted boundary damps them."""
     if rf.exercised or rc.exercised:
         return []
     diff = abs(rf.gamma - rc.gamma)
     if diff > 0.05 * abs(rf.gamma) and 0.5 * vol * vol * spot * spot * diff > 1e-3 * strike:
         return [
             f"the two grids' gammas differ by {diff / max(abs(rf.gamma), 1e-300):.0%}: gamma "
-            "and theta are unreliable here (Crank-Nicolson oscillations near the exercise "
-            "boundary); method='fitted' damps them"
+            "and theta are unreliable here (oscillations near the exercise boundary); a finer "
+            "accuracy preset will tell"
         ]
     return []
 
@@ -930,7 +941,7 @@ def _price_pair(
     x_min, h, n, k_idx, frame_y = _preset_layout(x_spot, t, rate, q, vol, american, preset)
     if frame_y:
         return None
-    levels = _coarse_levels(preset)
+    levels = _coarse_levels(preset, vol * math.sqrt(t), american)
     unit_c = unit_time_grid(levels)
     unit_f = unit_time_grid(2 * levels)
     tangents = greeks != "grid" and american
@@ -1051,7 +1062,7 @@ def _price_pair_dividends(
                                                  preset)
     if frame_y and not problem.has_events:
         return None  # an escrowed European solved in frame "y": the general path's
-    levels = _coarse_levels(preset)
+    levels = _coarse_levels(preset, sd, american)
     if not american and sd > LONG_SD:
         levels = max(levels, min(math.ceil(levels * (sd / LONG_SD) ** 1.5), MAX_LONG_LEVELS))
     events = problem.dividend_tau if problem.has_events else ()

@@ -202,25 +202,25 @@ def solve(
 
 
 def fitted_boundary(problem: PDEProblem, space: SpaceGrid, time: TimeGrid) -> bool:
-    """Whether the march fits the exercise boundary inside its cell and takes BDF2 steps.
+    """Whether the march fits the exercise boundary inside its cell.
 
     Where it does, the ghost value at the first held node
-    (:func:`stopline._kernels._substitute_fitted`) and L-stable BDF2 steps after the implicit
-    start (:func:`stopline._kernels.bdf2_step`) make the error a smooth function of the
-    spacing and the step, so that the Richardson pair removes it. That is done for American
-    options in frame "x" without cash dividends and without term-structure breakpoints.
+    (:func:`stopline._kernels._substitute_fitted`, seen by both halves of each
+    Crank-Nicolson step) and BDF2 blended into the few rows the boundary sweeps in a step
+    (:func:`stopline._kernels.damping_band`) make the error a smooth function of the spacing
+    and the step, so that the Richardson pair removes it. That is done for American options
+    in frame "x" without cash dividends and without term-structure breakpoints.
 
     - European options keep Crank-Nicolson, whose error is smooth already.
     - Cash dividends keep the plain scheme: under the escrowed model the march goes one step
       at a time on shifted spots (where the premium's curvature next to the boundary
       differs), and under the spot model the fitted march was measured less accurate (an
       American put, S = 80, K = 100, T = 1.5, two dividends of 2: error 1.3e-6 x K at
-      "standard" against 4e-7 plain, both within their error estimates; the time grading
-      restarts at every ex-date, where BDF2's larger error constant shows).
+      "standard" against 4e-7 plain, both within their error estimates, when the fitted
+      march took BDF2 steps on every row; the time grading restarts at every ex-date).
     - Term-structure breakpoints keep Crank-Nicolson: their segments restart the grading
       without implicit steps, and the first step-size ratios there (3, 5/3, ...) exceed what
-      variable-step BDF2 tolerates (``1 + sqrt(2)``); measured, the American put of
-      ``tests/test_termstructure.py`` moved by 2.5e-5 x K between presets with BDF2.
+      variable-step BDF2 tolerates (``1 + sqrt(2)``), and the damped rows are BDF2.
     - Frame "y" (very low vol) keeps the plain scheme: there the payoff moves across the
       nodes and the curvature formula of :func:`stopline._kernels.pasting_curvature` does
       not apply.
@@ -239,11 +239,11 @@ def tangents_available(problem: PDEProblem, space: SpaceGrid, method: ExerciseMe
 
 
 def solve_with_tangents(
-    problem: PDEProblem, space: SpaceGrid, time: TimeGrid, fitted: bool = False
+    problem: PDEProblem, space: SpaceGrid, time: TimeGrid, fitted: bool = True
 ) -> tuple[GridSolution, FloatArray]:
     """:func:`solve` with the direct sweep, plus the exact derivatives of the values with
     respect to the volatility and the rate (tangent-linear march, no bump). ``fitted``:
-    march as method ``"fitted"`` does (:class:`~stopline.exercise.FittedSweep`) where
+    fit the exercise boundary (:class:`~stopline.exercise.DirectSweep`) where
     :func:`fitted_boundary` allows it.
 
     Returns

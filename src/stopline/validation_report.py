@@ -29,7 +29,7 @@ _COLOURS = ("#1f5f8b", "#c0541d", "#4f8a32", "#7d3c8a", "#6a6a6a", "#b08d1a", "#
             "#9b2335")
 _FAMILY_STYLE = {
     "PDE (stopline, method 'direct')": ("#1f5f8b", "o"),
-    "PDE (stopline, method 'fitted')": ("#2a9d8f", "P"),
+    "PDE (stopline, method 'direct-plain')": ("#2a9d8f", "P"),
     "Leisen-Reimer (extrapolated)": ("#c0541d", "s"),
     "CRR-BS (extrapolated)": ("#4f8a32", "^"),
     "Barone-Adesi-Whaley 1987": ("#7d3c8a", "D"),

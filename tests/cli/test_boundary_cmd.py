@@ -99,7 +99,7 @@ def _pixels(path: Path) -> np.ndarray:
     return np.asarray(mpimg.imread(path))
 
 
-@pytest.mark.parametrize("method", ["direct", "fitted"])
+@pytest.mark.parametrize("method", ["direct", "psor"])
 def test_boundary_in_years_with_either_solver(runner: CliRunner, tmp_path: Path, method: str) -> None:
     # common practice: without dates the CSV counts years from valuation (date column empty),
     # its points are the library's with the same solver, and the PNG decodes to the figure's
@@ -123,7 +123,7 @@ def test_price_plot_of_an_american_option(runner: CliRunner, tmp_path: Path) -> 
     # common practice: `price --plot` writes the value/delta/gamma figure (7.5 x 8.5 inches at
     # 150 dpi) next to the usual table, which still carries the caution.
     fig = tmp_path / "v.png"
-    r = runner.invoke(app, ["price", *CONTRACT, "--expiry", "0.5", "--method", "fitted",
+    r = runner.invoke(app, ["price", *CONTRACT, "--expiry", "0.5", "--method", "psor",
                             "--plot", str(fig)])
     assert r.exit_code == 0, r.output
     assert f"figure: {fig}" in r.output.replace("\n", "") and "model-risk" in r.output

@@ -35,7 +35,6 @@ class Accuracy(str, Enum):
 
 class Method(str, Enum):
     direct = "direct"
-    fitted = "fitted"
     psor = "psor"
 
 
