@@ -1879,11 +1879,18 @@ def _value_after_weights(v, x, x0, h, d, df_r, df_q, ahead, is_put, american):
     val = c0 * v[j0] + c1 * v[j0 + 1] + c2 * v[j0 + 2] + c3 * v[j0 + 3]
     lo_i = i if v[i] < v[i + 1] else i + 1
     hi_i = i if v[i] > v[i + 1] else i + 1
+    k = -1  # the node whose value the limiter returns
     if val < v[lo_i]:
-        return v[lo_i], lo_i, 1.0, 0.0, 0.0, 0.0
-    if val > v[hi_i]:
-        return v[hi_i], hi_i, 1.0, 0.0, 0.0, 0.0
-    return val, j0, c0, c1, c2, c3
+        k = lo_i
+    elif val > v[hi_i]:
+        k = hi_i
+    if k < 0:
+        return val, j0, c0, c1, c2, c3
+    # its weight 1 within the same four-node window (which lies inside the grid: the
+    # caller reads all four nodes)
+    o = k - j0
+    return (v[k], j0, 1.0 if o == 0 else 0.0, 1.0 if o == 1 else 0.0, 1.0 if o == 2 else 0.0,
+            1.0 if o == 3 else 0.0)
 
 
 @njit(cache=True)
