@@ -122,3 +122,20 @@ def test_unreliable_gamma_is_flagged_and_fitted_theta_matches_the_expiry_derivat
         fd_theta = -(up - dn) / (2 * d)
         assert fit.theta <= 0.0
         assert fit.theta == pytest.approx(fd_theta, rel=2.5e-2), acc
+
+
+def test_health_warning_spares_typical_contracts_and_flags_gross_disagreement() -> None:
+    # Own computation: the error estimate is the finer grid's error before extrapolation, so
+    # on the textbook put (Hull's example, S = K = 50, r = 10 %, vol 40 %, 5 months) it is
+    # 1.1e-5 x K while the price is within 1e-7 x K of "fine": no warning. Ten times the
+    # preset's promise (1e-5 x K at standard) is where price() starts to warn.
+    from stopline.pricing import HEALTH_FACTOR, _health_warnings
+
+    res = price(Option("put", 50.0, 5 / 12), Market(50.0, 0.10, 0.40))
+    fine = price(Option("put", 50.0, 5 / 12), Market(50.0, 0.10, 0.40), accuracy="fine")
+    assert res.error_estimate > 1e-5 * 50.0 and abs(res.price - fine.price) < 1e-6 * 50.0
+    assert not res.stats.warnings
+    k, promised = 100.0, 1e-5
+    assert not _health_warnings(0.99 * HEALTH_FACTOR * promised * k, k, "standard", (1.0,))
+    msg = _health_warnings(1.01 * HEALTH_FACTOR * promised * k, k, "standard", (1.0,))
+    assert len(msg) == 1 and "grids differ" in msg[0]
