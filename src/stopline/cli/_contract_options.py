@@ -59,8 +59,8 @@ MethodOpt = Annotated[
     Method,
     typer.Option(
         "--method",
-        help="direct (Brennan-Schwartz on Crank-Nicolson steps), fitted (boundary fitted in "
-        "its cell, BDF2 steps: meets the accuracy targets) or psor.",
+        help="direct (Brennan-Schwartz sweep) or psor (projected SOR, slower); both solve "
+        "Crank-Nicolson steps with the exercise boundary fitted in its cell.",
     ),
 ]
 DividendOpt = Annotated[
