@@ -321,36 +321,40 @@ def _pivot_map(a, b, c):
 
 
 @njit(cache=True, fastmath={"contract"})
-def _eliminate_down(rhs, w, aw, a, b, c, ga, gb, gc, j0, j1, keep_w):
-    """Eliminate the upper diagonal from the top (a put's sweep): afterwards
-    ``v_j = rhs_j - aw_j v_{j-1}`` (``rhs`` scaled by the pivot ``w_j``).
+def _eliminate(rhs, w, aw, far, b, near, gfar, gb, gnear, j0, j1, keep_w, step):
+    """Eliminate one off-diagonal of the tridiagonal system, rows taken in the direction
+    ``step``: from the top (``step = -1``, a put's sweep; ``near`` the super-diagonal, ``far``
+    the sub-diagonal), after which ``v_j = rhs_j - aw_j v_{j-1}``; or from the bottom
+    (``step = 1``, a call's sweep; the roles swapped), after which
+    ``v_j = rhs_j - aw_j v_{j+1}``. ``rhs`` ends scaled by the pivot ``w_j``.
 
-    Rows ``j0..j1`` have their own coefficients ``(ga, gb, gc)``, the others ``(a, b, c)``.
-    The pivots of a run of constant rows follow the closed form of :func:`_pivot_map`; once
-    they are within rounding of its fixed point the sweep goes on without a division, two
-    rows at a time (which halves the serial latency of its recurrence), up to the band or the
-    end.
-    ``keep_w`` stores every pivot (the tangent march needs them).
+    Rows ``j0..j1`` have their own coefficients ``(gfar, gb, gnear)``, the others
+    ``(far, b, near)``. The pivots of a run of constant rows follow the closed form of
+    :func:`_pivot_map`; once they are within rounding of its fixed point the sweep goes on
+    without a division, two rows at a time (which halves the serial latency of its
+    recurrence), up to the band or the end. ``keep_w`` stores every pivot (the tangent march
+    needs them).
     """
     n = rhs.shape[0]
-    j = n - 2
+    j = n - 2 if step < 0 else 1
     r = 0.0
-    wn = 0.0  # pivot of the row above (none at the top)
-    an = 0.0  # sub-diagonal coefficient of the row above
-    ok, ws, wp, kz = _pivot_map(a, b, c)
+    wn = 0.0  # pivot of the row before (none at the start)
+    fn = 0.0  # its coefficient on this row
+    ok, ws, wp, kz = _pivot_map(far, b, near)
     z = 0.0
-    chain = False  # whether z holds the pivot of the row above (a constant row)
-    while j >= 1:
+    chain = False  # whether z holds the pivot of the row before (a constant row)
+    band_first = j1 if step < 0 else j0  # the band's first row in the sweep's direction
+    while 1 <= j <= n - 2:
         inb = j0 <= j <= j1
-        aj = ga[j] if inb else a
+        fj = gfar[j] if inb else far
         bj = gb[j] if inb else b
-        cj = gc[j] if inb else c
-        f = cj * wn
+        nj = gnear[j] if inb else near
+        f = nj * wn
         if chain and not inb:
             z *= kz
             wj = (ws - z * wp) / (1.0 - z)
         else:
-            wj = 1.0 / (bj - f * an)
+            wj = 1.0 / (bj - f * fn)
             chain = ok and not inb
             if chain:
                 z = (wj - ws) / (wj - wp)
@@ -361,108 +365,42 @@ def _eliminate_down(rhs, w, aw, a, b, c, ga, gb, gc, j0, j1, keep_w):
             if fixed:
                 wj = ws
         else:
-            fixed = (not inb) and wj == wn and an == a
+            fixed = (not inb) and wj == wn and fn == far
         w[j] = wj
-        aw[j] = aj * wj
+        aw[j] = fj * wj
         r = rhs[j] - f * r
         rhs[j] = r * wj
         wn = wj
-        an = aj
-        j -= 1
+        fn = fj
+        j += step
         if fixed:
-            stop = j1 if (j0 <= j1 and j1 <= j) else 0
-            awc = a * wj
-            fc = c * wj
+            if j0 <= j1 and (band_first - j) * step >= 0:
+                stop = band_first
+            else:
+                stop = 0 if step < 0 else n - 1
+            awc = far * wj
+            fc = near * wj
             f2 = fc * fc
             i = j
-            while i >= stop + 2:
-                g = rhs[i - 1] - fc * rhs[i]
+            while (stop - i) * step >= 2:
+                g = rhs[i + step] - fc * rhs[i]
                 ri = rhs[i] - fc * r
                 r = g + f2 * r
                 aw[i] = awc
-                aw[i - 1] = awc
+                aw[i + step] = awc
                 if keep_w:
                     w[i] = wj
-                    w[i - 1] = wj
+                    w[i + step] = wj
                 rhs[i] = ri * wj
-                rhs[i - 1] = r * wj
-                i -= 2
-            if i == stop + 1:
+                rhs[i + step] = r * wj
+                i += 2 * step
+            if i == stop - step:
                 aw[i] = awc
                 if keep_w:
                     w[i] = wj
                 r = rhs[i] - fc * r
                 rhs[i] = r * wj
-                i -= 1
-            j = i
-
-
-@njit(cache=True, fastmath={"contract"})
-def _eliminate_up(rhs, w, aw, a, b, c, ga, gb, gc, j0, j1, keep_w):
-    """Mirror image of :func:`_eliminate_down` (a call's sweep): eliminate the lower diagonal
-    from the bottom, so that ``v_j = rhs_j - aw_j v_{j+1}``."""
-    n = rhs.shape[0]
-    j = 1
-    r = 0.0
-    wn = 0.0
-    cn = 0.0
-    ok, ws, wp, kz = _pivot_map(a, b, c)
-    z = 0.0
-    chain = False
-    while j <= n - 2:
-        inb = j0 <= j <= j1
-        aj = ga[j] if inb else a
-        bj = gb[j] if inb else b
-        cj = gc[j] if inb else c
-        f = aj * wn
-        if chain and not inb:
-            z *= kz
-            wj = (ws - z * wp) / (1.0 - z)
-        else:
-            wj = 1.0 / (bj - f * cn)
-            chain = ok and not inb
-            if chain:
-                z = (wj - ws) / (wj - wp)
-        if inb:
-            chain = False
-        if chain:
-            fixed = abs(z) < 1e-18
-            if fixed:
-                wj = ws
-        else:
-            fixed = (not inb) and wj == wn and cn == c
-        w[j] = wj
-        aw[j] = cj * wj
-        r = rhs[j] - f * r
-        rhs[j] = r * wj
-        wn = wj
-        cn = cj
-        j += 1
-        if fixed:
-            stop = j0 if (j0 <= j1 and j0 >= j) else n - 1
-            awc = c * wj
-            fa = a * wj
-            f2 = fa * fa
-            i = j
-            while i <= stop - 2:
-                g = rhs[i + 1] - fa * rhs[i]
-                ri = rhs[i] - fa * r
-                r = g + f2 * r
-                aw[i] = awc
-                aw[i + 1] = awc
-                if keep_w:
-                    w[i] = wj
-                    w[i + 1] = wj
-                rhs[i] = ri * wj
-                rhs[i + 1] = r * wj
-                i += 2
-            if i == stop - 1:
-                aw[i] = awc
-                if keep_w:
-                    w[i] = wj
-                r = rhs[i] - fa * r
-                rhs[i] = r * wj
-                i += 1
+                i += step
             j = i
 
 
@@ -711,7 +649,7 @@ def march_direct_tangents(
                            keep_cn, keep_older)
         if is_put:
             rhs[n - 2] -= (gc[n - 2] if j0 <= n - 2 <= j1 else c) * vh
-            _eliminate_down(rhs, w, aw, a, b, c, ga, gb, gc, j0, j1, n_par > 0)
+            _eliminate(rhs, w, aw, a, b, c, ga, gb, gc, j0, j1, n_par > 0, -1)
             nv[0] = vl
             if fitted:
                 jg, ug, kg = _substitute_fitted(
@@ -725,7 +663,7 @@ def march_direct_tangents(
             nv[n - 1] = vh
         else:
             rhs[1] -= (ga[1] if j0 <= 1 <= j1 else a) * vl
-            _eliminate_up(rhs, w, aw, a, b, c, ga, gb, gc, j0, j1, n_par > 0)
+            _eliminate(rhs, w, aw, c, b, a, gc, gb, ga, j0, j1, n_par > 0, 1)
             nv[n - 1] = vh
             if fitted:
                 jg, ug, kg = _substitute_fitted(

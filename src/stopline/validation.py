@@ -691,22 +691,21 @@ def _published_section(quick: bool) -> Section:
             "Hull, Options, Futures, and Other Derivatives, numerical procedures chapter "
             "(recalled): printed to the digits shown", round(got, digits), printed,
             0.5 * 10.0 ** -digits))
-    baw_cases = pub.BAW_TABLE[::3] if quick else pub.BAW_TABLE
-    baw_diff = [abs(baw_price("call", s, 100.0, t, 0.10, 0.10, v).value - val)
-                for t, v, s, val in baw_cases]
-    checks.append(_at_most(
-        "reference Barone-Adesi-Whaley vs its published example table, max |difference|",
-        "Barone-Adesi & Whaley (1987), example table in Haug, The Complete Guide to Option "
-        "Pricing Formulas (recalled)", max(baw_diff), 3e-3,
-        f"{len(baw_cases)} calls with q = r = 0.10 (values of the approximation)"))
-    bjs_cases = pub.BJS_TABLE[::3] if quick else pub.BJS_TABLE
-    bjs_diff = [abs(bjerksund_stensland_price("call", s, 100.0, t, 0.10, 0.10, v).value - val)
-                for t, v, s, val in bjs_cases]
-    checks.append(_at_most(
-        "reference Bjerksund-Stensland (2002) vs its published example table, max |difference|",
-        "Bjerksund & Stensland (2002), example table in Haug, The Complete Guide to Option "
-        "Pricing Formulas (recalled); printed to 4 decimals", max(bjs_diff), 1e-4,
-        f"{len(bjs_cases)} calls with q = r = 0.10 (values of the approximation)"))
+    approximations = (
+        ("Barone-Adesi-Whaley", baw_price, pub.BAW_TABLE, 3e-3,
+         "Barone-Adesi & Whaley (1987), example table in Haug, The Complete Guide to Option "
+         "Pricing Formulas (recalled)"),
+        ("Bjerksund-Stensland (2002)", bjerksund_stensland_price, pub.BJS_TABLE, 1e-4,
+         "Bjerksund & Stensland (2002), example table in Haug, The Complete Guide to Option "
+         "Pricing Formulas (recalled); printed to 4 decimals"),
+    )
+    for label, formula, table, tol, source in approximations:
+        cases = table[::3] if quick else table
+        diff = [abs(formula("call", s, 100.0, t, 0.10, 0.10, v).value - val)
+                for t, v, s, val in cases]
+        checks.append(_at_most(
+            f"reference {label} vs its published example table, max |difference|", source,
+            max(diff), tol, f"{len(cases)} calls with q = r = 0.10 (values of the approximation)"))
     hull_g = bsm_greeks("call", 49.0, 50.0, 0.3846, 0.05, 0.0, 0.2)
     g_excess = [abs(getattr(hull_g, name) - printed) / (0.5 * 10.0 ** -digits)
                 for name, printed, digits in pub.HULL_GREEKS]
