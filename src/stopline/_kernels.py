@@ -1204,6 +1204,32 @@ def _held_or_exercised(v, x, x0, h, d, pv, df_r, df_q, ahead, is_put):
 
 
 @njit(cache=True)
+def _cell_kink(v, xl, xr, x0, h, d, df_r, df_q, ahead, pv, is_put, american, x_zero):
+    """Where, inside the cell ``[xl, xr]``, the value after the drop has a kink: the point
+    where holding and exercising trade places (American; found by 40 bisections, to
+    ``h / 2^40``), else where the dropped spot reaches zero (``x_zero``), else NaN."""
+    if american:
+        gl = _value_after(v, xl, x0, h, d, df_r, df_q, ahead, is_put, True) - _exercise_value(xl, pv, is_put)
+        gr = _value_after(v, xr, x0, h, d, df_r, df_q, ahead, is_put, True) - _exercise_value(xr, pv, is_put)
+        if gl * gr < 0.0:
+            a = xl
+            b = xr
+            for _ in range(40):
+                m = 0.5 * (a + b)
+                gm = _value_after(v, m, x0, h, d, df_r, df_q, ahead, is_put, True) - _exercise_value(
+                    m, pv, is_put
+                )
+                if (gm < 0.0) == (gl < 0.0):
+                    a = m
+                else:
+                    b = m
+            return 0.5 * (a + b)
+    if xl < x_zero < xr:
+        return x_zero
+    return math.nan
+
+
+@njit(cache=True)
 def dividend_jump(v, payoff, x0, h, d, pv, df_r, df_q, ahead, is_put, american, out):
     """Values just before an ex-dividend date from those just after.
 
@@ -1254,25 +1280,7 @@ def dividend_jump(v, payoff, x0, h, d, pv, df_r, df_q, ahead, is_put, american, 
         xr = xj + half
         w = _value_after(v, xj, x0, h, d, df_r, df_q, ahead, is_put, american)
         e = payoff[j] if american else 0.0
-        xk = math.nan
-        if american:
-            gl = _value_after(v, xl, x0, h, d, df_r, df_q, ahead, is_put, True) - _exercise_value(xl, pv, is_put)
-            gr = _value_after(v, xr, x0, h, d, df_r, df_q, ahead, is_put, True) - _exercise_value(xr, pv, is_put)
-            if gl * gr < 0.0:
-                a = xl
-                b = xr
-                for _ in range(40):
-                    m = 0.5 * (a + b)
-                    gm = _value_after(v, m, x0, h, d, df_r, df_q, ahead, is_put, True) - _exercise_value(
-                        m, pv, is_put
-                    )
-                    if (gm < 0.0) == (gl < 0.0):
-                        a = m
-                    else:
-                        b = m
-                xk = 0.5 * (a + b)
-        if math.isnan(xk) and xl < x_zero < xr:
-            xk = x_zero
+        xk = _cell_kink(v, xl, xr, x0, h, d, df_r, df_q, ahead, pv, is_put, american, x_zero)
         if math.isnan(xk):
             out[j] = w if w > e else e
             continue
@@ -1915,25 +1923,7 @@ def dividend_jump_tangents(v, tan, payoff, x0, h, d, pv, df_r, df_q, ahead, is_p
         xr = xj + half
         w, j0, c0, c1, c2, c3 = _value_after_weights(v, xj, x0, h, d, df_r, df_q, ahead, is_put, american)
         e = payoff[j] if american else 0.0
-        xk = math.nan
-        if american:
-            gl = _value_after(v, xl, x0, h, d, df_r, df_q, ahead, is_put, True) - _exercise_value(xl, pv, is_put)
-            gr = _value_after(v, xr, x0, h, d, df_r, df_q, ahead, is_put, True) - _exercise_value(xr, pv, is_put)
-            if gl * gr < 0.0:
-                a = xl
-                b = xr
-                for _ in range(40):
-                    m = 0.5 * (a + b)
-                    gm = _value_after(v, m, x0, h, d, df_r, df_q, ahead, is_put, True) - _exercise_value(
-                        m, pv, is_put
-                    )
-                    if (gm < 0.0) == (gl < 0.0):
-                        a = m
-                    else:
-                        b = m
-                xk = 0.5 * (a + b)
-        if math.isnan(xk) and xl < x_zero < xr:
-            xk = x_zero
+        xk = _cell_kink(v, xl, xr, x0, h, d, df_r, df_q, ahead, pv, is_put, american, x_zero)
         if math.isnan(xk):
             held = w if w > e else e
             out[j] = held
