@@ -29,6 +29,7 @@ from .greeks import (
 from .grid import SpaceGrid, TimeGrid, build_space_grid, negligible_reach, unit_time_grid
 from .market import Market
 from .operator import choose_frame, coefficients
+from .perpetual import american_bounds
 from .solve import (
     GridSolution,
     PDEProblem,
@@ -563,6 +564,56 @@ def _exercised_at_once(
                   ExerciseBoundary(empty, empty), stats, option, market, t, "exact")
 
 
+#: The perpetual bounds replace the grid where they are this close, relative to the preset's
+#: target (see :func:`_near_perpetual`).
+PERPETUAL_GAP = 0.01
+
+
+def _near_perpetual(
+    option: Option, market: Market, method: ExerciseMethod, t: float, accuracy: str,
+    warnings: list[str], greeks: str = "full",
+) -> Result | None:
+    """A life so long and volatile that bounds without a grid pin the value, or None.
+
+    The finite-life value lies between bounds in closed form
+    (:func:`stopline.perpetual.american_bounds`: the perpetual option above, the perpetual
+    exercise rule cut off at expiry and the European value below). Where they are closer
+    than :data:`PERPETUAL_GAP` times the preset's target, the price is their midpoint and
+    ``error_estimate`` half their distance; no grid is solved (the far corners of the domain,
+    vol 5 for 50 years, where a grid would need more nodes than it may have). Delta and gamma
+    are those of the bound that sets the value, theta is 0 (the bounds' distance bounds the
+    change with the life), vega and rho central differences of the bounds' midpoint. The
+    boundary is not computed.
+    """
+    name = check_choice("accuracy", accuracy, tuple(PRESETS))
+    k, s = option.strike, market.spot
+    r, q, vol = market.rate, market.div_yield, market.vol
+    b = american_bounds(option.is_put, s / k, t, r, q, vol)
+    if b is None or b.upper - b.lower > PERPETUAL_GAP * PRESETS[name].target:
+        return None
+    value = 0.5 * (b.upper + b.lower) * k
+    delta, gamma = b.delta, b.gamma / k
+    if greeks == "grid":
+        vega = rho = math.nan
+    else:
+        def mid(r_: float, v_: float) -> float:
+            bb = american_bounds(option.is_put, s / k, t, r_, q, v_)
+            return math.nan if bb is None else 0.5 * (bb.upper + bb.lower) * k
+
+        dv, dr = 1e-5 * vol, 1e-5 * max(abs(r), 1e-3)
+        vega = (mid(r, vol + dv) - mid(r, vol - dv)) / (2.0 * dv)
+        rho = (mid(r + dr, vol) - mid(r - dr, vol)) / (2.0 * dr)
+        if greeks == "vega":
+            rho = math.nan
+    note = (f"life long and volatile enough that bounds pin the value: between "
+            f"{b.lower * k:.10g} and {b.upper * k:.10g} (Merton 1973; stopline.perpetual); no "
+            "grid solved, exercise boundary not computed")
+    stats = SolveStats(0, 0, 0, 0, 0, method.name, 0, 0, (s, s), warnings=(*warnings, note))
+    empty = np.empty(0)
+    return Result(value, delta, gamma, 0.0, vega, rho, 0.5 * (b.upper - b.lower) * k,
+                  ExerciseBoundary(empty, empty), stats, option, market, t, name)
+
+
 def _zero_vol_limit(option: Option, market: Market, method: ExerciseMethod, t: float) -> Result:
     """Deterministic spot ``S e^{(r-q)u}``: the best of exercising at any ``u`` in [0, T].
 
@@ -763,6 +814,10 @@ def price(
         if s_star is not None and (market.spot <= k * s_star if option.is_put
                                    else market.spot >= k * s_star):
             return _exercised_at_once(option, market, solver, t, k * s_star, warnings, greeks)
+        if grid is None:
+            near = _near_perpetual(option, market, solver, t, accuracy, warnings, greeks)
+            if near is not None:
+                return near
     refine = math.sqrt(max(market.spot / k, 1.0)) if swapped else 1.0
     space_c, time_c, acc_name = _resolve_grid(grid_problem, accuracy, grid, refine)
     if space_c.n >= MAX_COARSE_NODES:
