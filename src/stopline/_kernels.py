@@ -1149,43 +1149,9 @@ def _value_after(v, x, x0, h, d, df_r, df_q, ahead, is_put, american):
     (so a monotone value stays monotone and non-negative); below the first node, the
     far-field value of :func:`far_value` at the dropped spot ``s``, whose discounted forward
     ``s df_q`` the dividends still ahead (``ahead``, discounted like it) lower, but not below
-    zero: a put there is worth at most ``df_r``.
+    zero: a put there is worth at most ``df_r``. The value of :func:`_value_after_weights`.
     """
-    n = v.shape[0]
-    s = math.exp(x) - d
-    if s <= math.exp(x0):
-        if s < 0.0:
-            s = 0.0
-        carry = s * df_q
-        if ahead < carry:
-            carry = ahead
-        return far_value(s, df_r + carry, df_q, is_put, american)
-    y = (math.log(s) - x0) / h
-    i = int(math.floor(y))
-    if i > n - 2:
-        i = n - 2
-    j0 = i - 1
-    if j0 < 0:
-        j0 = 0
-    if j0 > n - 4:
-        j0 = n - 4
-    t = y - j0
-    a0 = t - 1.0
-    a1 = t - 2.0
-    a2 = t - 3.0
-    val = (
-        -a0 * a1 * a2 / 6.0 * v[j0]
-        + t * a1 * a2 / 2.0 * v[j0 + 1]
-        - t * a0 * a2 / 2.0 * v[j0 + 2]
-        + t * a0 * a1 / 6.0 * v[j0 + 3]
-    )
-    lo = v[i] if v[i] < v[i + 1] else v[i + 1]
-    hi = v[i] if v[i] > v[i + 1] else v[i + 1]
-    if val < lo:
-        return lo
-    if val > hi:
-        return hi
-    return val
+    return _value_after_weights(v, x, x0, h, d, df_r, df_q, ahead, is_put, american)[0]
 
 
 @njit(cache=True)
@@ -1793,9 +1759,7 @@ def _value_after_weights(v, x, x0, h, d, df_r, df_q, ahead, is_put, american):
     """:func:`_value_after` and how it depends on the nodes: ``(value, j0, c0, c1, c2, c3)``
     with ``d value = sum_i c_i dv[j0 + i]`` for a change ``dv`` of the values that moves
     neither ``x`` nor the far field (``j0 = 0`` and all ``c_i = 0`` below the first node,
-    where the value is the far field's; one ``c_i = 1`` where the limiter clamps).
-
-    The same floating-point operations as :func:`_value_after`, so the same value."""
+    where the value is the far field's; one ``c_i = 1`` where the limiter clamps)."""
     n = v.shape[0]
     s = math.exp(x) - d
     if s <= math.exp(x0):
