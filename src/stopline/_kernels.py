@@ -1755,6 +1755,23 @@ def price_pair(
 
 
 @njit(cache=True)
+def _cubic_window(s, x0, h, n):
+    """Where spot ``s`` (above the first node) falls on the grid: the bracketing node ``i``,
+    the first ``j0`` of the four nodes of the Lagrange cubic (kept inside the grid) and the
+    position ``t`` in cells from ``j0``."""
+    y = (math.log(s) - x0) / h
+    i = int(math.floor(y))
+    if i > n - 2:
+        i = n - 2
+    j0 = i - 1
+    if j0 < 0:
+        j0 = 0
+    if j0 > n - 4:
+        j0 = n - 4
+    return i, j0, y - j0
+
+
+@njit(cache=True)
 def _value_after_weights(v, x, x0, h, d, df_r, df_q, ahead, is_put, american):
     """:func:`_value_after` and how it depends on the nodes: ``(value, j0, c0, c1, c2, c3)``
     with ``d value = sum_i c_i dv[j0 + i]`` for a change ``dv`` of the values that moves
@@ -1769,16 +1786,7 @@ def _value_after_weights(v, x, x0, h, d, df_r, df_q, ahead, is_put, american):
         if ahead < carry:
             carry = ahead
         return far_value(s, df_r + carry, df_q, is_put, american), 0, 0.0, 0.0, 0.0, 0.0
-    y = (math.log(s) - x0) / h
-    i = int(math.floor(y))
-    if i > n - 2:
-        i = n - 2
-    j0 = i - 1
-    if j0 < 0:
-        j0 = 0
-    if j0 > n - 4:
-        j0 = n - 4
-    t = y - j0
+    i, j0, t = _cubic_window(s, x0, h, n)
     a0 = t - 1.0
     a1 = t - 2.0
     a2 = t - 3.0
@@ -1822,16 +1830,7 @@ def _value_after_slope(v, x, x0, h, d, df_r, df_q, ahead, is_put, american):
         if american and e > far:
             return sgn * ex
         return sgn * df_q * ex if (fwd > 0.0 and capped) else 0.0
-    y = (math.log(s) - x0) / h
-    i = int(math.floor(y))
-    if i > n - 2:
-        i = n - 2
-    j0 = i - 1
-    if j0 < 0:
-        j0 = 0
-    if j0 > n - 4:
-        j0 = n - 4
-    t = y - j0
+    i, j0, t = _cubic_window(s, x0, h, n)
     a0 = t - 1.0
     a1 = t - 2.0
     a2 = t - 3.0
