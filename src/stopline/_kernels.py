@@ -321,7 +321,7 @@ def _pivot_map(a, b, c):
 
 
 @njit(cache=True, fastmath={"contract"})
-def _eliminate(rhs, w, aw, far, b, near, gfar, gb, gnear, j0, j1, keep_w, step):
+def _eliminate(rhs, w, aw, far, b, near, gfar, gb, gnear, j0, j1, keep_w, step, lim0, lim1):
     """Eliminate one off-diagonal of the tridiagonal system, rows taken in the direction
     ``step``: from the top (``step = -1``, a put's sweep; ``near`` the super-diagonal, ``far``
     the sub-diagonal), after which ``v_j = rhs_j - aw_j v_{j-1}``; or from the bottom
@@ -333,10 +333,10 @@ def _eliminate(rhs, w, aw, far, b, near, gfar, gb, gnear, j0, j1, keep_w, step):
     :func:`_pivot_map`; once they are within rounding of its fixed point the sweep goes on
     without a division, two rows at a time (which halves the serial latency of its
     recurrence), up to the band or the end. ``keep_w`` stores every pivot (the tangent march
-    needs them).
+    needs them). Only rows ``lim0..lim1`` are eliminated (all interior rows: ``1..n - 2``;
+    the sweep may stop short of the exercise region, see :func:`march_direct_tangents`).
     """
-    n = rhs.shape[0]
-    j = n - 2 if step < 0 else 1
+    j = lim1 if step < 0 else lim0
     r = 0.0
     wn = 0.0  # pivot of the row before (none at the start)
     fn = 0.0  # its coefficient on this row
@@ -344,7 +344,7 @@ def _eliminate(rhs, w, aw, far, b, near, gfar, gb, gnear, j0, j1, keep_w, step):
     z = 0.0
     chain = False  # whether z holds the pivot of the row before (a constant row)
     band_first = j1 if step < 0 else j0  # the band's first row in the sweep's direction
-    while 1 <= j <= n - 2:
+    while lim0 <= j <= lim1:
         inb = j0 <= j <= j1
         fj = gfar[j] if inb else far
         bj = gb[j] if inb else b
@@ -377,24 +377,36 @@ def _eliminate(rhs, w, aw, far, b, near, gfar, gb, gnear, j0, j1, keep_w, step):
             if j0 <= j1 and (band_first - j) * step >= 0:
                 stop = band_first
             else:
-                stop = 0 if step < 0 else n - 1
+                stop = lim0 - 1 if step < 0 else lim1 + 1
             awc = far * wj
             fc = near * wj
-            f2 = fc * fc
+            # four rows at a time: the partial sums p depend only on the right-hand side, so
+            # the recurrence's latency is one fused multiply-add per four rows
+            c1 = -fc
+            c2 = c1 * c1
+            c3 = c2 * c1
+            c4 = c2 * c2
             i = j
-            while (stop - i) * step >= 2:
-                g = rhs[i + step] - fc * rhs[i]
-                ri = rhs[i] - fc * r
-                r = g + f2 * r
-                aw[i] = awc
-                aw[i + step] = awc
+            while (stop - i) * step >= 4:
+                p0 = rhs[i]
+                p1 = rhs[i + step] + c1 * p0
+                p2 = rhs[i + 2 * step] + c1 * p1
+                p3 = rhs[i + 3 * step] + c1 * p2
+                r0 = p0 + c1 * r
+                r1 = p1 + c2 * r
+                r2 = p2 + c3 * r
+                r = p3 + c4 * r
+                for m in range(4):
+                    aw[i + m * step] = awc
                 if keep_w:
-                    w[i] = wj
-                    w[i + step] = wj
-                rhs[i] = ri * wj
-                rhs[i + step] = r * wj
-                i += 2 * step
-            if i == stop - step:
+                    for m in range(4):
+                        w[i + m * step] = wj
+                rhs[i] = r0 * wj
+                rhs[i + step] = r1 * wj
+                rhs[i + 2 * step] = r2 * wj
+                rhs[i + 3 * step] = r * wj
+                i += 4 * step
+            while i != stop:
                 aw[i] = awc
                 if keep_w:
                     w[i] = wj
@@ -483,11 +495,13 @@ def ghost_gap(gap, beta, s):
 @njit(cache=True, fastmath={"contract"})
 def _begin_step(
     k, v, ex, payoff, rhs, dt, theta, lo, di, up, df_r, df_q, shift, scale, is_put, american,
+    r0, r1,
 ):
     """What every solver does first in step ``k``: the far-field values, the exercise value
     (recomputed only when the frame's shift or scale changes, so never in frame "x"), and
-    the explicit half of the theta step into ``rhs``. Returns the implicit matrix's
-    ``(sub, diag, super)`` and the far-field values ``(vl, vh)``."""
+    the explicit half of the theta step into ``rhs`` on rows ``r0..r1`` (all interior rows:
+    ``1..n - 2``). Returns the implicit matrix's ``(sub, diag, super)`` and the far-field
+    values ``(vl, vh)``."""
     n = v.shape[0]
     sk = shift[k]
     ae = (1.0 - theta[k]) * dt[k]
@@ -506,9 +520,49 @@ def _begin_step(
     el = ae * lk
     ed = 1.0 + ae * d
     eu = ae * u
-    for j in range(1, n - 1):
-        rhs[j] = el * v[j - 1] + ed * v[j] + eu * v[j + 1]
+    # on views from the row before r0: indices that cannot be negative keep the loop
+    # vectorised (a possibly negative index costs a wraparound fix-up on every access)
+    vv = v[r0 - 1:r1 + 2]
+    rr = rhs[r0:r1 + 1]
+    for i in range(r1 - r0 + 1):
+        rr[i] = el * vv[i] + ed * vv[i + 1] + eu * vv[i + 2]
     return -ai * lk, 1.0 - ai * d, -ai * u, vl, vh
+
+
+#: Cells kept between the rows a step of an American march solves and where the exercise
+#: boundary is expected (:func:`held_rows`), beyond twice its expected move in the step.
+SKIP_MARGIN = 4
+
+
+@njit(cache=True)
+def held_rows(k, dt, bnd, x0, h, n, is_put):
+    """The rows ``(lim0, lim1)`` that step ``k`` of an American march solves: all interior
+    rows but those deep in the exercise region (below the boundary for a put, above it for a
+    call), which keep the exercise value.
+
+    The boundary is expected where it was at the level before (``bnd[k - 1]``) or where it
+    is headed (extrapolated linearly from the two levels before, as :func:`damping_band`
+    does); the solved rows reach :data:`SKIP_MARGIN` cells plus twice that move beyond it.
+    The march checks that the first solved row is surely exercised and solves every row
+    otherwise, so this only decides how much work is saved, never the result.
+    """
+    if k == 0 or math.isnan(bnd[k - 1]):
+        return 1, n - 2
+    c = (bnd[k - 1] - x0) / h
+    move = 0.0
+    if k >= 2 and not math.isnan(bnd[k - 2]):
+        move = (bnd[k - 1] - bnd[k - 2]) / h * (dt[k] / dt[k - 1])
+    if is_put:
+        edge = c + 2.0 * move if move < 0.0 else c
+        j = math.floor(edge) - SKIP_MARGIN
+        if not j > 1.0:  # NaN too
+            return 1, n - 2
+        return int(min(j, n - 2.0)), n - 2
+    edge = c + 2.0 * move if move > 0.0 else c
+    j = math.ceil(edge) + SKIP_MARGIN
+    if not j < n - 2.0:
+        return 1, n - 2
+    return 1, int(max(j, 1.0))
 
 
 @njit(cache=True)
@@ -620,36 +674,60 @@ def march_direct_tangents(
     d2 = np.zeros(n_par)
     jg, ug, kg = -1, 0.0, 0.0
     ka = kb = 0.0
-    # the substitution's range, as plain integers (literal arguments would compile a second
-    # copy of it)
-    s_first = 1 if is_put else n - 2
-    s_stop = n - 1 if is_put else 0
+    # rows deep in the exercise region are skipped (see Notes): ``lim0..lim1`` are solved
     s_step = 1 if is_put else -1
     for k in range(dt.shape[0]):
         if n_par and not fitted:
             for j in range(n):  # a loop, not v_old[:] = v: slice assignment compiles slowly
                 v_old[j] = cur[j]
-        a, b, c, vl, vh = _begin_step(
-            k, cur, ex, payoff, rhs, dt, theta, lo, di, up, df_r, df_q, shift, scale, is_put,
-            american,
-        )
+        lim0, lim1 = 1, n - 2
+        if american and k >= 1 and shift[k] == shift[k - 1] and scale[k] == scale[k - 1]:
+            lim0, lim1 = held_rows(k, dt, bnd, x0, h, n, is_put)
         nv = prev if fitted else cur  # where this step's values go
-        j0, j1, cb, cb_hi = 1, 0, 0.0, 0.0
         jgo, ugo, kgo = -1, 0.0, 0.0  # the ghost of the level before
-        if fitted:
-            if k == 0 or lo[k] != lo[k - 1] or di[k] != di[k - 1] or up[k] != up[k - 1]:
-                ka, kb = pasting_curvature(lo[k], di[k], up[k], h, is_put)
-            if theta[k] < 1.0:
-                jgo, ugo, kgo = jg, ug, kg
-                if jg >= 0:
-                    side = lo[k] if is_put else up[k]
-                    rhs[jg] += (1.0 - theta[k]) * dt[k] * side * ghost_explicit(ug, kg, h)
-                j0, j1, cb, cb_hi = damping_band(k, dt, theta, bnd, x0, h, n)
-                _damp_band(rhs, ga, gb, gc, cur, prev, j0, j1, cb, cb_hi, k, dt, lo, di, up,
-                           keep_cn, keep_older)
+        while True:  # once, or twice if the skipped rows turn out not to be exercised
+            a, b, c, vl, vh = _begin_step(
+                k, cur, ex, payoff, rhs, dt, theta, lo, di, up, df_r, df_q, shift, scale,
+                is_put, american, lim0, lim1,
+            )
+            j0, j1, cb, cb_hi = 1, 0, 0.0, 0.0
+            if fitted:
+                if k == 0 or lo[k] != lo[k - 1] or di[k] != di[k - 1] or up[k] != up[k - 1]:
+                    ka, kb = pasting_curvature(lo[k], di[k], up[k], h, is_put)
+                if theta[k] < 1.0:
+                    jgo, ugo, kgo = jg, ug, kg
+                    if jg >= 0:
+                        side = lo[k] if is_put else up[k]
+                        rhs[jg] += (1.0 - theta[k]) * dt[k] * side * ghost_explicit(ug, kg, h)
+                    j0, j1, cb, cb_hi = damping_band(k, dt, theta, bnd, x0, h, n)
+                    _damp_band(rhs, ga, gb, gc, cur, prev, j0, j1, cb, cb_hi, k, dt, lo, di,
+                               up, keep_cn, keep_older)
+            if is_put:
+                rhs[n - 2] -= (gc[n - 2] if j0 <= n - 2 <= j1 else c) * vh
+                _eliminate(rhs, w, aw, a, b, c, ga, gb, gc, j0, j1, n_par > 0, -1, lim0, lim1)
+                edge = lim0
+            else:
+                rhs[1] -= (ga[1] if j0 <= 1 <= j1 else a) * vl
+                _eliminate(rhs, w, aw, c, b, a, gc, gb, ga, j0, j1, n_par > 0, 1, lim0, lim1)
+                edge = lim1
+            if lim0 == 1 and lim1 == n - 2:
+                break
+            # the first solved row must be surely exercised (so are the skipped rows then)
+            # (fitted: held needs a gap above -kappa h^2, :func:`_substitute_fitted`)
+            bound = max(ka + kb * ex[edge], 0.0) * h * h if fitted else 0.0
+            if rhs[edge] - aw[edge] * payoff[edge - s_step] <= payoff[edge] - bound:
+                break
+            lim0, lim1 = 1, n - 2
+        # the skipped rows are exercised: their values are the exercise value
+        for j in range(1, lim0):
+            nv[j] = payoff[j]
+        for j in range(lim1 + 1, n - 1):
+            nv[j] = payoff[j]
+        # the substitution's range, as plain integers (literal arguments would compile a
+        # second copy of it)
+        s_first = lim0 if is_put else lim1
+        s_stop = lim1 + 1 if is_put else lim0 - 1
         if is_put:
-            rhs[n - 2] -= (gc[n - 2] if j0 <= n - 2 <= j1 else c) * vh
-            _eliminate(rhs, w, aw, a, b, c, ga, gb, gc, j0, j1, n_par > 0, -1)
             nv[0] = vl
             if fitted:
                 jg, ug, kg = _substitute_fitted(
@@ -662,8 +740,6 @@ def march_direct_tangents(
                     nv[j] = rhs[j] - aw[j] * nv[j - 1]
             nv[n - 1] = vh
         else:
-            rhs[1] -= (ga[1] if j0 <= 1 <= j1 else a) * vl
-            _eliminate(rhs, w, aw, c, b, a, gc, gb, ga, j0, j1, n_par > 0, 1)
             nv[n - 1] = vh
             if fitted:
                 jg, ug, kg = _substitute_fitted(
@@ -683,7 +759,7 @@ def march_direct_tangents(
                 _tangent_step(
                     k, p, tan, trhs, vo, nv, payoff, w, aw, e, dt, theta, lo, di, up, dco,
                     dfar, is_put, american, t_prev, fitted, jg, ug, kg, h, ex, ge, j0, j1, cb,
-                    cb_hi, jgo, ugo, kgo, bnd, d1[p], d2[p], keep_cn, keep_older,
+                    cb_hi, jgo, ugo, kgo, bnd, d1[p], d2[p], keep_cn, keep_older, lim0, lim1,
                 )
                 if fitted:
                     d2[p] = d1[p]
@@ -705,9 +781,10 @@ def march_direct_tangents(
 def _tangent_step(
     k, p, tan, trhs, v_old, v, payoff, w, aw, e, dt, theta, lo, di, up, dco, dfar, is_put,
     american, t_prev, fitted, jg, ug, kg, h, ex, ge, j0, j1, cb, cb_hi, jgo, ugo, kgo, bnd,
-    d1, d2, keep_cn, keep_older,
+    d1, d2, keep_cn, keep_older, lim0, lim1,
 ):
     """Advance the derivative ``tan[p]`` through step ``k`` (see :func:`march_direct_tangents`).
+    Rows outside ``lim0..lim1`` are exercised (their derivative is zero) and not solved.
 
     ``w``, ``aw`` are the step's pivots and substitution coefficients; ``e`` the coefficient
     that the elimination removes (super-diagonal for a put, sub-diagonal for a call), ``ge``
@@ -739,7 +816,7 @@ def _tangent_step(
     ed = 1.0 + ae * di[k]
     eu = ae * up[k]
     # explicit half, and the change of the operator on the new values
-    for j in range(1, n - 1):
+    for j in range(lim0, lim1 + 1):
         trhs[j] = (
             el * t[j - 1] + ed * t[j] + eu * t[j + 1]
             + ae * (dl * v_old[j - 1] + dd * v_old[j] + du * v_old[j + 1])
@@ -805,13 +882,16 @@ def _tangent_step(
         trhs[n - 2] -= (ge[n - 2] if j0 <= n - 2 <= j1 else e) * th
         r = trhs[n - 2]
         trhs[n - 2] = r * w[n - 2]
-        for j in range(n - 3, 0, -1):
+        for j in range(n - 3, lim0 - 1, -1):
             ej = ge[j] if j0 <= j <= j1 else e
             r = trhs[j] - ej * w[j + 1] * r
             trhs[j] = r * w[j]
         t[0] = tl
         y = tl  # the last value, carried in a register
-        for j in range(1, n - 1):
+        for j in range(1, lim0):
+            y = 0.0
+            t[j] = y
+        for j in range(lim0, n - 1):
             if american and v[j] <= payoff[j]:
                 y = 0.0
             elif j == jg:
@@ -824,13 +904,16 @@ def _tangent_step(
         trhs[1] -= (ge[1] if j0 <= 1 <= j1 else e) * tl
         r = trhs[1]
         trhs[1] = r * w[1]
-        for j in range(2, n - 1):
+        for j in range(2, lim1 + 1):
             ej = ge[j] if j0 <= j <= j1 else e
             r = trhs[j] - ej * w[j - 1] * r
             trhs[j] = r * w[j]
         t[n - 1] = th
         y = th
-        for j in range(n - 2, 0, -1):
+        for j in range(n - 2, lim1, -1):
+            y = 0.0
+            t[j] = y
+        for j in range(lim1, 0, -1):
             if american and v[j] <= payoff[j]:
                 y = 0.0
             elif j == jg:
@@ -845,8 +928,61 @@ def _tangent_step(
 def _held_then_projected(v, rhs, aw, payoff, j, stop, step, y):
     """From node ``j`` (``y`` the value before it): the continuation region, where the
     ``max`` is not needed, then the plain projected loop from the first node where it would
-    bind (for one boundary it never does again). Shared by both substitutions."""
-    while j != stop:  # continuation region
+    bind (for one boundary it never does again). Shared by both substitutions.
+
+    The continuation region goes four rows at a time: ``v_{j+m} = p_m + q_m y`` with partial
+    sums ``p`` and products ``q`` of the rows' own coefficients, which do not depend on
+    ``y``; so the serial latency is one fused multiply-add per four rows instead of one per
+    row. A block where any row would be exercised is redone row by row."""
+    # continuation region, four rows at a time while all four are held (the two directions
+    # written apart, each with a constant step)
+    if step > 0:
+        while j + 3 < stop:
+            p0 = rhs[j]
+            q0 = -aw[j]
+            p1 = rhs[j + 1] - aw[j + 1] * p0
+            q1 = -aw[j + 1] * q0
+            p2 = rhs[j + 2] - aw[j + 2] * p1
+            q2 = -aw[j + 2] * q1
+            p3 = rhs[j + 3] - aw[j + 3] * p2
+            q3 = -aw[j + 3] * q2
+            y0 = p0 + q0 * y
+            y1 = p1 + q1 * y
+            y2 = p2 + q2 * y
+            y3 = p3 + q3 * y
+            if not (y0 > payoff[j] and y1 > payoff[j + 1] and y2 > payoff[j + 2]
+                    and y3 > payoff[j + 3]):
+                break
+            v[j] = y0
+            v[j + 1] = y1
+            v[j + 2] = y2
+            v[j + 3] = y3
+            y = y3
+            j += 4
+    else:
+        while j - 3 > stop:
+            p0 = rhs[j]
+            q0 = -aw[j]
+            p1 = rhs[j - 1] - aw[j - 1] * p0
+            q1 = -aw[j - 1] * q0
+            p2 = rhs[j - 2] - aw[j - 2] * p1
+            q2 = -aw[j - 2] * q1
+            p3 = rhs[j - 3] - aw[j - 3] * p2
+            q3 = -aw[j - 3] * q2
+            y0 = p0 + q0 * y
+            y1 = p1 + q1 * y
+            y2 = p2 + q2 * y
+            y3 = p3 + q3 * y
+            if not (y0 > payoff[j] and y1 > payoff[j - 1] and y2 > payoff[j - 2]
+                    and y3 > payoff[j - 3]):
+                break
+            v[j] = y0
+            v[j - 1] = y1
+            v[j - 2] = y2
+            v[j - 3] = y3
+            y = y3
+            j -= 4
+    while j != stop:  # the rest of it, row by row
         t = rhs[j] - aw[j] * y
         if not t > payoff[j]:
             break
@@ -1016,7 +1152,7 @@ def march_psor(
     for k in range(dt.shape[0]):
         a, b, c, vl, vh = _begin_step(
             k, v, ex, payoff, rhs, dt, theta, lo, di, up, df_r, df_q, shift, scale, is_put,
-            american,
+            american, 1, n - 2,
         )
         j0, j1 = 1, 0
         if fitted:
