@@ -124,6 +124,13 @@ def far_values(s_lo, s_hi, df_r, df_q, is_put, american):
 
 @njit(cache=True)
 def locate_boundary(v, payoff, x0, h, is_put):
+    """Critical log-moneyness where the option stops being exercised, or NaN
+    (:func:`locate_boundary_from` scanning every node)."""
+    return locate_boundary_from(v, payoff, x0, h, is_put, 1 if is_put else v.shape[0] - 2)
+
+
+@njit(cache=True)
+def locate_boundary_from(v, payoff, x0, h, is_put, first):
     """Critical log-moneyness where the option stops being exercised, or NaN.
 
     The exercise region is the run of interior nodes, starting at the grid end where the
@@ -137,17 +144,21 @@ def locate_boundary(v, payoff, x0, h, is_put):
     ``x*`` may lie up to three spacings inside the run of exercised nodes; it is kept on the
     side of the strike where the payoff is positive (the strike's position is read off the
     payoff of the last exercised node, so any frame of the nodes will do).
+
+    The scan for the run of exercised nodes starts at node ``first`` (1 for a put and
+    ``n - 2`` for a call scan every node; a march that knows the nodes before ``first`` to
+    be exercised starts there).
     """
     n = v.shape[0]
     if is_put:
-        j = 1
+        j = first
         while j < n - 1 and payoff[j] > 0.0 and v[j] <= payoff[j]:
             j += 1
         if j == 1 or j >= n - 2:
             return math.nan
         step = h
     else:
-        j = n - 2
+        j = first
         while j > 0 and payoff[j] > 0.0 and v[j] <= payoff[j]:
             j -= 1
         if j == n - 2 or j <= 1:
@@ -712,10 +723,15 @@ def march_direct_tangents(
                 edge = lim1
             if lim0 == 1 and lim1 == n - 2:
                 break
-            # the first solved row must be surely exercised (so are the skipped rows then)
-            # (fitted: held needs a gap above -kappa h^2, :func:`_substitute_fitted`)
-            bound = max(ka + kb * ex[edge], 0.0) * h * h if fitted else 0.0
-            if rhs[edge] - aw[edge] * payoff[edge - s_step] <= payoff[edge] - bound:
+            # the first solved row must be exercised (so are the skipped rows then): as
+            # :func:`_substitute_fitted` decides after an exercised row
+            gap = rhs[edge] - aw[edge] * payoff[edge - s_step] - payoff[edge]
+            beta = -aw[edge]
+            kap = ka + kb * ex[edge]
+            if fitted and payoff[edge - s_step] > 0.0 and kap > 0.0 and 0.0 < beta < 1.0:
+                s2 = kap * h * h
+                gap = gap + beta * s2
+            if not gap > 0.0:
                 break
             lim0, lim1 = 1, n - 2
         # the skipped rows are exercised: their values are the exercise value
@@ -765,7 +781,7 @@ def march_direct_tangents(
                     d2[p] = d1[p]
                     d1[p] = locate_boundary_tangent(nv, tan[p], payoff, x0, h, is_put)
         if american:
-            bnd[k] = locate_boundary(nv, payoff, x0, h, is_put) + math.log(shift[k])
+            bnd[k] = locate_boundary_from(nv, payoff, x0, h, is_put, s_first) + math.log(shift[k])
         else:
             bnd[k] = math.nan
         if fitted:
