@@ -831,12 +831,17 @@ def _tangent_step(
     el = ae * lo[k]
     ed = 1.0 + ae * di[k]
     eu = ae * up[k]
-    # explicit half, and the change of the operator on the new values
-    for j in range(lim0, lim1 + 1):
-        trhs[j] = (
-            el * t[j - 1] + ed * t[j] + eu * t[j + 1]
-            + ae * (dl * v_old[j - 1] + dd * v_old[j] + du * v_old[j + 1])
-            + ai * (dl * v[j - 1] + dd * v[j] + du * v[j + 1])
+    # explicit half, and the change of the operator on the new values (on views from the
+    # row before lim0, so that no index can be negative and the loop vectorises)
+    tv = t[lim0 - 1:lim1 + 2]
+    vo = v_old[lim0 - 1:lim1 + 2]
+    vn = v[lim0 - 1:lim1 + 2]
+    tr = trhs[lim0:lim1 + 1]
+    for i in range(lim1 - lim0 + 1):
+        tr[i] = (
+            el * tv[i] + ed * tv[i + 1] + eu * tv[i + 2]
+            + ae * (dl * vo[i] + dd * vo[i + 1] + du * vo[i + 2])
+            + ai * (dl * vn[i] + dd * vn[i + 1] + du * vn[i + 2])
         )
     if fitted and jgo >= 0 and ugo > 0.0:
         # the ghost of the level before, seen by the explicit half (ghost_explicit)
@@ -898,16 +903,59 @@ def _tangent_step(
         trhs[n - 2] -= (ge[n - 2] if j0 <= n - 2 <= j1 else e) * th
         r = trhs[n - 2]
         trhs[n - 2] = r * w[n - 2]
-        for j in range(n - 3, lim0 - 1, -1):
+        j = n - 3
+        while j >= lim0:
+            if j - 3 >= lim0 and (j - 3 > j1 or j < j0):
+                # four rows outside the band at a time (see _held_then_projected)
+                f0 = e * w[j + 1]
+                f1 = e * w[j]
+                f2 = e * w[j - 1]
+                f3 = e * w[j - 2]
+                p0 = trhs[j]
+                p1 = trhs[j - 1] - f1 * p0
+                p2 = trhs[j - 2] - f2 * p1
+                p3 = trhs[j - 3] - f3 * p2
+                q0 = -f0
+                q1 = -f1 * q0
+                q2 = -f2 * q1
+                q3 = -f3 * q2
+                trhs[j] = (p0 + q0 * r) * w[j]
+                trhs[j - 1] = (p1 + q1 * r) * w[j - 1]
+                trhs[j - 2] = (p2 + q2 * r) * w[j - 2]
+                r = p3 + q3 * r
+                trhs[j - 3] = r * w[j - 3]
+                j -= 4
+                continue
             ej = ge[j] if j0 <= j <= j1 else e
             r = trhs[j] - ej * w[j + 1] * r
             trhs[j] = r * w[j]
+            j -= 1
         t[0] = tl
         y = tl  # the last value, carried in a register
         for j in range(1, lim0):
             y = 0.0
             t[j] = y
-        for j in range(lim0, n - 1):
+        j = lim0
+        while j < n - 1:
+            if (j + 3 < n - 1 and (jg < j or jg > j + 3) and (not american or (
+                    v[j] > payoff[j] and v[j + 1] > payoff[j + 1] and v[j + 2] > payoff[j + 2]
+                    and v[j + 3] > payoff[j + 3]))):
+                # four held rows at a time (see _held_then_projected)
+                p0 = trhs[j]
+                q0 = -aw[j]
+                p1 = trhs[j + 1] - aw[j + 1] * p0
+                q1 = -aw[j + 1] * q0
+                p2 = trhs[j + 2] - aw[j + 2] * p1
+                q2 = -aw[j + 2] * q1
+                p3 = trhs[j + 3] - aw[j + 3] * p2
+                q3 = -aw[j + 3] * q2
+                t[j] = p0 + q0 * y
+                t[j + 1] = p1 + q1 * y
+                t[j + 2] = p2 + q2 * y
+                y = p3 + q3 * y
+                t[j + 3] = y
+                j += 4
+                continue
             if american and v[j] <= payoff[j]:
                 y = 0.0
             elif j == jg:
@@ -915,21 +963,65 @@ def _tangent_step(
             else:
                 y = trhs[j] - aw[j] * y
             t[j] = y
+            j += 1
         t[n - 1] = th
     else:
         trhs[1] -= (ge[1] if j0 <= 1 <= j1 else e) * tl
         r = trhs[1]
         trhs[1] = r * w[1]
-        for j in range(2, lim1 + 1):
+        j = 2
+        while j <= lim1:
+            if j + 3 <= lim1 and (j + 3 < j0 or j > j1):
+                # four rows outside the band at a time (see _held_then_projected)
+                f0 = e * w[j - 1]
+                f1 = e * w[j]
+                f2 = e * w[j + 1]
+                f3 = e * w[j + 2]
+                p0 = trhs[j]
+                p1 = trhs[j + 1] - f1 * p0
+                p2 = trhs[j + 2] - f2 * p1
+                p3 = trhs[j + 3] - f3 * p2
+                q0 = -f0
+                q1 = -f1 * q0
+                q2 = -f2 * q1
+                q3 = -f3 * q2
+                trhs[j] = (p0 + q0 * r) * w[j]
+                trhs[j + 1] = (p1 + q1 * r) * w[j + 1]
+                trhs[j + 2] = (p2 + q2 * r) * w[j + 2]
+                r = p3 + q3 * r
+                trhs[j + 3] = r * w[j + 3]
+                j += 4
+                continue
             ej = ge[j] if j0 <= j <= j1 else e
             r = trhs[j] - ej * w[j - 1] * r
             trhs[j] = r * w[j]
+            j += 1
         t[n - 1] = th
         y = th
         for j in range(n - 2, lim1, -1):
             y = 0.0
             t[j] = y
-        for j in range(lim1, 0, -1):
+        j = lim1
+        while j > 0:
+            if (j - 3 > 0 and (jg > j or jg < j - 3) and (not american or (
+                    v[j] > payoff[j] and v[j - 1] > payoff[j - 1] and v[j - 2] > payoff[j - 2]
+                    and v[j - 3] > payoff[j - 3]))):
+                # four held rows at a time (see _held_then_projected)
+                p0 = trhs[j]
+                q0 = -aw[j]
+                p1 = trhs[j - 1] - aw[j - 1] * p0
+                q1 = -aw[j - 1] * q0
+                p2 = trhs[j - 2] - aw[j - 2] * p1
+                q2 = -aw[j - 2] * q1
+                p3 = trhs[j - 3] - aw[j - 3] * p2
+                q3 = -aw[j - 3] * q2
+                t[j] = p0 + q0 * y
+                t[j - 1] = p1 + q1 * y
+                t[j - 2] = p2 + q2 * y
+                y = p3 + q3 * y
+                t[j - 3] = y
+                j -= 4
+                continue
             if american and v[j] <= payoff[j]:
                 y = 0.0
             elif j == jg:
@@ -937,6 +1029,7 @@ def _tangent_step(
             else:
                 y = trhs[j] - aw[j] * y
             t[j] = y
+            j -= 1
         t[0] = tl
 
 
