@@ -293,7 +293,7 @@ def implied_vol_detail(
         As :func:`implied_vol`; also naming ``start`` when it prices another option,
         another market or at another accuracy.
     """
-    from .pricing import price
+    from .pricing import _value_and_error
 
     quote = check_real("quote", quote, lo=0.0, lo_open=False)
     acc = check_choice("accuracy", accuracy, tuple(PRICE_TOLERANCE))
@@ -318,9 +318,9 @@ def implied_vol_detail(
         # when it was built, and every vol tried lies in VOL_BRACKET, inside VOL_RANGE)
         mkt = copy.copy(market)
         object.__setattr__(mkt, "vol", float(vol))
-        res = price(option, mkt, accuracy=acc, greeks="grid")
-        error_estimates[vol] = res.error_estimate
-        return res.price
+        # price(..., greeks="grid")'s price and error estimate, without its Result
+        value, error_estimates[vol] = _value_and_error(option, mkt, acc)
+        return value
 
     lo, hi = VOL_BRACKET
     if quote <= bounds.lower + ftol:
