@@ -64,6 +64,7 @@ def count_work(book: Path, settings: CheckSettings) -> dict[str, float]:
 
     counts = {"price": 0, "vega": 0, "dividends": 0}
     real = pricing.price
+    real_value = pricing._value_and_error  # the implied-vol search's prices (greeks="grid")
 
     def price(option, market, **kw):
         counts["price"] += 1
@@ -71,12 +72,19 @@ def count_work(book: Path, settings: CheckSettings) -> dict[str, float]:
         counts["dividends"] += bool(market.dividends)
         return real(option, market, **kw)
 
+    def value(option, market, accuracy):
+        counts["price"] += 1
+        counts["dividends"] += bool(market.dividends)
+        return real_value(option, market, accuracy)
+
     _, rows = read_book(book)
     pricing.price = cc.price = price
+    pricing._value_and_error = value
     try:
         check_rows(list(enumerate(rows)), settings)
     finally:
         pricing.price = cc.price = real
+        pricing._value_and_error = real_value
     return {k: v / len(rows) for k, v in counts.items()}
 
 

@@ -109,7 +109,8 @@ def test_american_vega_agrees_with_fine_prices():
 
 
 class CountPrices:
-    """Test hook: count price() calls (the cross-check's and the implied-vol search's)."""
+    """Test hook: count price() calls (the cross-check's and the implied-vol search's, which
+    takes price()'s numbers without its Result: ``pricing._value_and_error``, a "grid" price)."""
 
     def __init__(self, monkeypatch: pytest.MonkeyPatch) -> None:
         import stopline.crosscheck as cc
@@ -117,13 +118,19 @@ class CountPrices:
 
         self.calls: list[str] = []
         real = pricing.price
+        real_value = pricing._value_and_error
 
         def counted(*args, **kwargs):
             self.calls.append(kwargs.get("greeks", "full"))
             return real(*args, **kwargs)
 
+        def counted_value(*args, **kwargs):
+            self.calls.append("grid")
+            return real_value(*args, **kwargs)
+
         monkeypatch.setattr(pricing, "price", counted)
         monkeypatch.setattr(cc, "price", counted)
+        monkeypatch.setattr(pricing, "_value_and_error", counted_value)
 
 
 @pytest.mark.parametrize(
@@ -516,3 +523,21 @@ def test_other_dividend_model_is_tried():
     chk = check_row(row(kind="call", strike="95", div_yield="0", dividends="0.5:6", quote=f"{quote:.10f}"))
     assert chk.status == "mismatch", chk.note
     assert "escrowed dividend model" in chk.note
+
+
+def test_dividend_after_expiry_is_named_on_ok_and_mismatch_rows():
+    # the schedule's warning rides on the row's note whatever the status: alone on an ok
+    # row, after the diagnosis on a mismatch (an ex-date after expiry changes no price)
+    late = "1.5:0.8"
+    own = model(row())
+    ok = check_row(row(quote=own, dividends=late))
+    assert ok.status == "ok" and ok.causes == ()
+    assert ok.note == "dividend 0.8 at 1.5y ignored: its ex-date is after expiry"
+    far = check_row(row(quote=model(row(), style="european"), dividends=late))
+    assert far.status == "mismatch" and far.causes[0] == "european"
+    assert far.note.startswith("reproduced by priced as European")
+    assert far.note.endswith("; dividend 0.8 at 1.5y ignored: its ex-date is after expiry")
+    # and the dividend that does not count leaves the numbers as without it
+    plain = check_row(row(quote=own))
+    assert (ok.model_price, ok.implied_vol, ok.tolerance) == (plain.model_price, plain.implied_vol,
+                                                             plain.tolerance)

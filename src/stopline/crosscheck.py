@@ -581,19 +581,23 @@ def check_row(raw: Mapping[str, object], settings: CheckSettings | None = None) 
                                start=res, start_vega=vega))
     except (ImpliedVolError, StoplineError, ValueError) as exc:
         iv, iv_problem = None, str(exc)
-    base = RowCheck(
+    # dividends left out of the pricing (ex-date after expiry, or on the valuation date)
+    ignored = (dividend_schedule(line.market.dividends, t, line.market.valuation_date).warnings
+               if line.market.dividends else ())
+    status, causes = "ok", ()
+    if abs(diff) <= allowed:
+        note = "; ".join(ignored)
+    else:
+        status = "mismatch"
+        why, causes = _diagnose(line, allowed, iv, iv_problem, settings)
+        note = "; ".join((why, *ignored))
+    return RowCheck(
         model_price=model, difference=diff,
         implied_vol=math.nan if iv is None else iv,
         vol_difference=math.nan if iv is None else iv - line.market.vol,
-        tolerance=allowed, status="ok", note="", quote=q, vega=vega, moneyness=moneyness,
-        time_to_expiry=t,
+        tolerance=allowed, status=status, note=note, causes=causes, quote=q, vega=vega,
+        moneyness=moneyness, time_to_expiry=t,
     )
-    # dividends left out of the pricing (ex-date after expiry, or on the valuation date)
-    ignored = dividend_schedule(line.market.dividends, t, line.market.valuation_date).warnings
-    if abs(diff) <= allowed:
-        return replace(base, note="; ".join(ignored))
-    note, causes = _diagnose(line, allowed, iv, iv_problem, settings)
-    return replace(base, status="mismatch", note="; ".join((note, *ignored)), causes=causes)
 
 
 def check_rows(

@@ -181,8 +181,12 @@ def quote_bounds(option: Option, market: Market, time_to_expiry: float) -> Quote
     ----------
     Merton, R. C. (1973), Theory of rational option pricing, Bell J. Econ. 4(1).
     """
-    k, t = option.strike, time_to_expiry
-    s, r_avg, q_avg = _flat_equivalents(market, t)
+    return _bounds(option, time_to_expiry, *_flat_equivalents(market, time_to_expiry))
+
+
+def _bounds(option: Option, t: float, s: float, r_avg: float, q_avg: float) -> QuoteBounds:
+    """:func:`quote_bounds` from the flat equivalents of the market (:func:`_flat_equivalents`)."""
+    k = option.strike
     dr, dq = math.exp(-r_avg * t), math.exp(-q_avg * t)
     if option.is_put:
         euro_low = max(k * dr - s * dq, 0.0)
@@ -289,7 +293,7 @@ def implied_vol_detail(
         As :func:`implied_vol`; also naming ``start`` when it prices another option,
         another market or at another accuracy.
     """
-    from .pricing import price
+    from .pricing import _value_and_error
 
     quote = check_real("quote", quote, lo=0.0, lo_open=False)
     acc = check_choice("accuracy", accuracy, tuple(PRICE_TOLERANCE))
@@ -298,7 +302,9 @@ def implied_vol_detail(
     if t == 0.0:
         raise ImpliedVolError(quote, "the option expires now: its price is the intrinsic value "
                               "whatever the vol, so no vol is implied", "expired")
-    bounds = quote_bounds(option, market, t)
+    # the flat equivalents once (with cash dividends they sum the schedule's present value)
+    s_eff, r_avg, q_avg = _flat_equivalents(market, t)
+    bounds = _bounds(option, t, s_eff, r_avg, q_avg)
     ftol = PRICE_TOLERANCE[acc] * k
     _check_quote(quote, bounds, ftol)
     seed = _seed(start, start_vega, option, market, acc)
@@ -312,9 +318,9 @@ def implied_vol_detail(
         # when it was built, and every vol tried lies in VOL_BRACKET, inside VOL_RANGE)
         mkt = copy.copy(market)
         object.__setattr__(mkt, "vol", float(vol))
-        res = price(option, mkt, accuracy=acc, greeks="grid")
-        error_estimates[vol] = res.error_estimate
-        return res.price
+        # price(..., greeks="grid")'s price and error estimate, without its Result
+        value, error_estimates[vol] = _value_and_error(option, mkt, acc)
+        return value
 
     lo, hi = VOL_BRACKET
     if quote <= bounds.lower + ftol:
@@ -337,7 +343,6 @@ def implied_vol_detail(
             f"({bounds.lower_name} {bounds.lower:.6g})",
             "below_model",
         )
-    s_eff, r_avg, q_avg = _flat_equivalents(market, t)
     euro = _EuropeanModel(option.is_put, s_eff, k, t, r_avg, q_avg)
     if seed is not None:
         v0 = seed[0]

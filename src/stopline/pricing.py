@@ -898,6 +898,22 @@ def price(
                   boundary, stats, option, market, t, acc_name)
 
 
+def _value_and_error(option: Option, market: Market, accuracy: str) -> tuple[float, float]:
+    """``price(option, market, accuracy=accuracy, greeks="grid")``'s price and error estimate,
+    the same numbers, without building the :class:`Result` where a one-call pair applies
+    (the implied-vol search's price function, called many times per quote)."""
+    t = option.time_to_expiry(market.valuation_date)
+    if t > 0.0 and _ONE_CALL and not _extreme(option, market, t):
+        solver = get_method("direct")
+        out = _price_pair(option, market, t, accuracy, "grid", solver, True)
+        if out is None and market.dividends:
+            out = _price_pair_dividends(option, market, t, accuracy, "grid", solver, True)
+        if out is not None:
+            return out
+    res = price(option, market, accuracy=accuracy, greeks="grid")
+    return res.price, res.error_estimate
+
+
 def _extrapolate(coarse: float, fine: float) -> float:
     """Richardson's step for a second-order scheme on grids of spacing ``2h`` and ``h``."""
     return fine + (fine - coarse) / 3.0
@@ -986,14 +1002,16 @@ def _domain(strike: float, x_min: float, h: float, n: int) -> tuple[float, float
 
 def _price_pair(
     option: Option, market: Market, t: float, accuracy: str, greeks: str, solver: DirectSweep,
-) -> Result | None:
+    value_only: bool = False,
+) -> Result | tuple[float, float] | None:
     """:func:`price` in one kernel call (:func:`stopline._kernels.price_pair`), or None
     where it does not apply.
 
     It applies with flat rate, yield and vol, no cash dividends, a preset, the direct sweep
     (the caller checks those two) and frame "x", and gives the same numbers as the general
     path: every rule on the way (grid layout, time levels, step plan, march, read-off,
-    boundary fit, extrapolation) is the one the general path uses.
+    boundary fit, extrapolation) is the one the general path uses. ``value_only``: only
+    ``(price, error_estimate)`` (see :func:`_value_and_error`).
     """
     if market.dividends or market.has_term_structure:
         return None
@@ -1027,6 +1045,8 @@ def _price_pair(
     rc = GridReadout(o[0], o[1], o[2], o[3] != 0.0)
     rf = GridReadout(o[4], o[5], o[6], o[7] != 0.0)
     value, delta, gamma = _richardson(rc, rf, option, market, q, t)
+    if value_only:
+        return value, abs(rf.value - rc.value) / 3.0
     if greeks == "grid":
         vega = rho = math.nan
     elif not american:
@@ -1091,7 +1111,8 @@ def _events(idx: tuple[int, ...], amounts: tuple[float, ...]) -> tuple[FloatArra
 
 def _price_pair_dividends(
     option: Option, market: Market, t: float, accuracy: str, greeks: str, solver: DirectSweep,
-) -> Result | None:
+    value_only: bool = False,
+) -> Result | tuple[float, float] | None:
     """:func:`price` with cash dividends in one kernel call per pair
     (:func:`stopline._kernels.price_pair_cash_dividends`), or None where it does not apply.
 
@@ -1102,6 +1123,7 @@ def _price_pair_dividends(
     tangent marched with the solution and carried through the jumps
     (:func:`stopline._kernels.dividend_jump_tangents`) instead of a central difference of
     re-solved prices. Rho stays a central difference of two re-solves, here compiled.
+    ``value_only``: only ``(price, error_estimate)`` (see :func:`_value_and_error`).
     """
     if market.has_term_structure:
         return None
@@ -1111,9 +1133,9 @@ def _price_pair_dividends(
         flat_market = dataclasses.replace(market, dividends=())
         if _extreme(option, flat_market, t):
             return None
-        res = _price_pair(option, flat_market, t, accuracy, greeks, solver)
-        if res is None:
-            return None
+        res = _price_pair(option, flat_market, t, accuracy, greeks, solver, value_only)
+        if res is None or value_only:
+            return res
         stats = dataclasses.replace(res.stats, warnings=problem.warnings + res.stats.warnings)
         return dataclasses.replace(res, market=market, stats=stats)
     rate, q, vol = problem.rate, problem.div_yield, problem.vol
@@ -1162,6 +1184,8 @@ def _price_pair_dividends(
     rc = GridReadout(o[0], o[1], o[2], o[3] != 0.0)
     rf = GridReadout(o[4], o[5], o[6], o[7] != 0.0)
     value, delta, gamma = _richardson(rc, rf, option, market, q, t)
+    if value_only:
+        return value, abs(rf.value - rc.value) / 3.0
     if greeks == "grid":
         vega = rho = math.nan
     elif rf.exercised:
