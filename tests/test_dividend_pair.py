@@ -5,6 +5,7 @@ or to the general path's NumPy code."""
 
 from __future__ import annotations
 
+import dataclasses
 import math
 
 import numpy as np
@@ -110,9 +111,9 @@ def test_compiled_pair_equals_general_path(monkeypatch: pytest.MonkeyPatch, case
 
 
 def test_plain_sweep_gives_the_same_numbers_with_dividends(monkeypatch: pytest.MonkeyPatch) -> None:
-    # the boundary is not fitted with cash dividends (solve.fitted_boundary): the default
-    # sweep and the plain one march the same plain Crank-Nicolson steps, on both paths, and
-    # name the solver asked for
+    # spot-model dividends: the default sweep fits the boundary (solve.fitted_boundary) and
+    # the plain one does not, on both paths alike, and each names the solver asked for;
+    # escrowed dividends are never fitted, so there the two sweeps agree
     opt, mkt = CASES[0]
     plain = DirectSweep(fitted=False)
     one = pricing._price_pair_dividends(opt, mkt, 1.0, "fast", "grid", plain)
@@ -120,7 +121,11 @@ def test_plain_sweep_gives_the_same_numbers_with_dividends(monkeypatch: pytest.M
                                method=plain))
     assert one.stats.method == "direct-plain"
     default = pricing._price_pair_dividends(opt, mkt, 1.0, "fast", "grid", DirectSweep())
-    assert default.stats.method == "direct" and default.price == one.price
+    assert default.stats.method == "direct" and default.price != one.price
+    esc = dataclasses.replace(mkt, dividend_model="escrowed")
+    e_plain = pricing._price_pair_dividends(opt, esc, 1.0, "fast", "grid", plain)
+    e_default = pricing._price_pair_dividends(opt, esc, 1.0, "fast", "grid", DirectSweep())
+    assert e_default.price == e_plain.price
 
 
 def test_dividends_after_expiry_take_the_flat_pair(monkeypatch: pytest.MonkeyPatch) -> None:
@@ -339,7 +344,7 @@ def test_solve_cash_dividends_equals_solve(american: bool, is_put: bool, model: 
         is_put, american, p.escrowed, 1.0, p.rate, p.div_yield, p.vol, x_min, h, n, k_idx,
         coefficients(h, p.rate, p.div_yield, p.vol), tg.tau, tg.dt, tg.theta, ev, amt,
         np.asarray(p.dividend_tau), np.asarray(p.dividend_amount), p.escrow_pv, 0, v, payoff,
-        np.empty((0, n)), bnd, False,
+        np.empty((0, n)), bnd, american and model == "spot",  # fitted as solve() does
     )
     np.testing.assert_allclose(v, ref.values, rtol=1e-13, atol=1e-16)
     np.testing.assert_allclose(payoff, ref.payoff, rtol=1e-14, atol=1e-16)

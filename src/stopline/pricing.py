@@ -1175,7 +1175,7 @@ def _price_pair_dividends(
             is_put, american, escrowed, t, r, q, vol, p.x_spot, p.escrow_pv, k, x_min, h, n,
             k_idx, coefficients(h, r, q, vol), coefficients(0.5 * h, r, q, vol), time_c.tau,
             time_c.dt, time_c.theta, ev_c, time_f.tau, time_f.dt, time_f.theta, ev_f, amt_c,
-            div_tau, div_amt, n_par, out, bnd[0], bnd[1], bnd[2], False,
+            div_tau, div_amt, n_par, out, bnd[0], bnd[1], bnd[2], american and not escrowed and solver.fitted,
         )
         return out.tolist()
 
