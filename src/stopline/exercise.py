@@ -10,9 +10,9 @@ the solver class; :func:`get_method` accepts a name or an instance.
   raises :class:`~stopline.errors.ConvergenceError` at its cap.
 
 Both solve the same discrete problem: Crank-Nicolson steps after a Rannacher start, with the
-exercise boundary fitted inside its cell (American options with flat data and no cash
-dividends; see :func:`stopline.solve.fitted_boundary`), so they agree on the same grid to
-their tolerances. ``DirectSweep(fitted=False)`` and ``ProjectedSOR(fitted=False)`` solve the
+exercise boundary fitted inside its cell (American options with flat data, and for the
+direct sweep also with spot-model cash dividends; see :func:`stopline.solve.fitted_boundary`),
+so they agree on the same grid to their tolerances where both fit it. ``DirectSweep(fitted=False)`` and ``ProjectedSOR(fitted=False)`` solve the
 plain projected Crank-Nicolson problem instead (named ``"direct-plain"`` and
 ``"psor-plain"``), kept for comparison: near the boundary its error jumps about with the grid,
 so the Richardson pair cannot remove it.
