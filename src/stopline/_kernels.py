@@ -36,10 +36,15 @@ here. ``tests/test_kernels.py`` holds the two paths equal.
 
 from __future__ import annotations
 
+import functools
 import math
 
+import numba
 import numpy as np
-from numba import njit
+
+#: Every kernel: division by zero gives inf or NaN as in NumPy instead of raising (no
+#: exception paths, which keep reference counts on arrays the compiler could drop).
+njit = functools.partial(numba.njit, error_model="numpy")
 
 __all__ = [
     "obstacle",
