@@ -248,19 +248,20 @@ SWEEP_FACTOR = 1.0
 
 
 @njit(cache=True)
-def damping_band(k, dt, theta, bnd, x0, h, n):
-    """The rows that step ``k`` of a fitted march damps, ``(j0, j1, c_lo, c_hi)``.
+def damping_band(theta_k, b1, b2, ratio, x0, h, n):
+    """The rows that a step of a fitted march damps, ``(j0, j1, c_lo, c_hi)``.
 
     They are the rows the exercise boundary sweeps during the step, from where it was at the
-    level before (``bnd[k - 1]``) to where it is headed (extrapolated linearly from the two
-    levels before), both in cells from ``x0`` (``c_lo <= c_hi``), and
+    level before (``b1``) to where it is headed (extrapolated linearly from ``b2`` and
+    ``b1``, the two levels before, over a step ``ratio`` times the last), both in cells from
+    ``x0`` (``c_lo <= c_hi``), and
     :data:`BAND_HALF_WIDTH` cells either side: where the exercise constraint, moving across
     the nodes, disturbs the solution at every step. Crank-Nicolson does not damp such
     disturbances (its amplification factor tends to -1 for the stiff components), so they
     ring and the time error jumps about with the step, which spoils Richardson
     extrapolation; blending the L-stable BDF2 into those rows damps them where they arise,
     while every other row stays Crank-Nicolson. The band is empty (``j0 > j1``) for an
-    implicit (Rannacher) step, the first step, or no boundary.
+    implicit (Rannacher) step (``theta_k`` 1), the first step or no boundary (``b1`` NaN).
 
     References
     ----------
@@ -268,11 +269,11 @@ def damping_band(k, dt, theta, bnd, x0, h, n):
     Numer. Math. 43 (damping where the data are not smooth); Hairer, E. and Wanner, G.
     (1996), Solving Ordinary Differential Equations II, Springer (variable-step BDF2).
     """
-    if k == 0 or theta[k] >= 1.0 or math.isnan(bnd[k - 1]):
+    if theta_k >= 1.0 or math.isnan(b1):
         return 1, 0, 0.0, 0.0
-    c_lo = c_hi = (bnd[k - 1] - x0) / h
-    if k >= 2 and not math.isnan(bnd[k - 2]):
-        ahead = c_lo + SWEEP_FACTOR * (bnd[k - 1] - bnd[k - 2]) / h * (dt[k] / dt[k - 1])
+    c_lo = c_hi = (b1 - x0) / h
+    if not math.isnan(b2):
+        ahead = c_lo + SWEEP_FACTOR * (b1 - b2) / h * ratio
         if ahead < c_lo:
             c_lo = ahead
         else:
@@ -283,14 +284,14 @@ def damping_band(k, dt, theta, bnd, x0, h, n):
 
 
 @njit(cache=True)
-def damping_band_tangent(k, dt, bnd, h, d1, d2):
+def damping_band_tangent(b1, b2, ratio, h, d1, d2):
     """Derivatives ``(dc_lo, dc_hi)`` of the swept cells of :func:`damping_band` for
     derivatives ``d1``, ``d2`` of the boundary at the two levels before."""
     dc = d1 / h
-    if k >= 2 and not math.isnan(bnd[k - 2]):
-        r = dt[k] / dt[k - 1]
+    if not math.isnan(b2):
+        r = ratio
         dahead = dc + SWEEP_FACTOR * (d1 - d2) / h * r
-        if (bnd[k - 1] - bnd[k - 2]) * r < 0.0:
+        if (b1 - b2) * r < 0.0:
             return dahead, dc
         return dc, dahead
     return dc, dc
@@ -510,29 +511,27 @@ def ghost_gap(gap, beta, s):
 
 @njit(cache=True, fastmath={"contract"})
 def _begin_step(
-    k, v, ex, payoff, rhs, dt, theta, lo, di, up, df_r, df_q, shift, scale, is_put, american,
-    r0, r1,
+    k, v, ex, rhs, dt, theta, lo, di, up, df_r, df_q, shift, scale, is_put, american, r0, r1,
 ):
-    """What every solver does first in step ``k``: the far-field values, the exercise value
-    (recomputed only when the frame's shift or scale changes, so never in frame "x"), and
-    the explicit half of the theta step into ``rhs`` on rows ``r0..r1`` (all interior rows:
-    ``1..n - 2``). Returns the implicit matrix's ``(sub, diag, super)`` and the far-field
-    values ``(vl, vh)``."""
+    """What every solver does first in step ``k``: the far-field values and the explicit
+    half of the theta step into ``rhs`` on rows ``r0..r1`` (all interior rows:
+    ``1..n - 2``); the exercise value is the caller's (:func:`_refresh_exercise`). Returns
+    the implicit matrix's ``(sub, diag, super)`` and the far-field values ``(vl, vh)``.
+
+    Arrays are read at the top and written in one loop, so that the compiler can drop the
+    reference counting of its array arguments (atomic operations, which on small grids cost
+    as much as the step itself)."""
     n = v.shape[0]
     sk = shift[k]
+    sc = scale[k]
     ae = (1.0 - theta[k]) * dt[k]
     ai = theta[k] * dt[k]
     lk = lo[k]
     d = di[k]
     u = up[k]
     vl, vh = far_values(ex[0] * sk, ex[n - 1] * sk, df_r[k], df_q[k], is_put, american)
-    vl *= scale[k]
-    vh *= scale[k]
-    if american and (k == 0 or sk != shift[k - 1] or scale[k] != scale[k - 1]):
-        obstacle(ex, sk, is_put, payoff)
-        if scale[k] != 1.0:
-            for j in range(n):
-                payoff[j] *= scale[k]
+    vl *= sc
+    vh *= sc
     el = ae * lk
     ed = 1.0 + ae * d
     eu = ae * u
@@ -545,29 +544,45 @@ def _begin_step(
     return -ai * lk, 1.0 - ai * d, -ai * u, vl, vh
 
 
+@njit(cache=True)
+def _refresh_exercise(k, ex, payoff, shift, scale, is_put):
+    """The exercise value on the nodes at step ``k`` into ``payoff``, where it changes (the
+    first step, or a new shift or scale of the frame; so never after the first step in frame
+    "x")."""
+    sk = shift[k]
+    sc = scale[k]
+    if k == 0 or sk != shift[k - 1] or sc != scale[k - 1]:
+        obstacle(ex, sk, is_put, payoff)
+        if sc != 1.0:
+            for j in range(payoff.shape[0]):
+                payoff[j] *= sc
+
+
 #: Cells kept between the rows a step of an American march solves and where the exercise
 #: boundary is expected (:func:`held_rows`), beyond twice its expected move in the step.
 SKIP_MARGIN = 4
 
 
 @njit(cache=True)
-def held_rows(k, dt, bnd, x0, h, n, is_put):
+def held_rows(b1, b2, ratio, x0, h, n, is_put):
     """The rows ``(lim0, lim1)`` that step ``k`` of an American march solves: all interior
     rows but those deep in the exercise region (below the boundary for a put, above it for a
     call), which keep the exercise value.
 
-    The boundary is expected where it was at the level before (``bnd[k - 1]``) or where it
-    is headed (extrapolated linearly from the two levels before, as :func:`damping_band`
-    does); the solved rows reach :data:`SKIP_MARGIN` cells plus twice that move beyond it.
+    The boundary is expected where it was at the level before (``b1``) or where it is headed
+    (extrapolated linearly from ``b2`` and ``b1``, the two levels before, over a step
+    ``ratio`` times the last, as :func:`damping_band` does); the solved rows reach
+    :data:`SKIP_MARGIN` cells plus twice that move beyond it. Scalars only: see
+    :func:`_begin_step` on reference counting.
     The march checks that the first solved row is surely exercised and solves every row
     otherwise, so this only decides how much work is saved, never the result.
     """
-    if k == 0 or math.isnan(bnd[k - 1]):
+    if math.isnan(b1):
         return 1, n - 2
-    c = (bnd[k - 1] - x0) / h
+    c = (b1 - x0) / h
     move = 0.0
-    if k >= 2 and not math.isnan(bnd[k - 2]):
-        move = (bnd[k - 1] - bnd[k - 2]) / h * (dt[k] / dt[k - 1])
+    if not math.isnan(b2):
+        move = (b1 - b2) / h * ratio
     if is_put:
         edge = c + 2.0 * move if move < 0.0 else c
         j = math.floor(edge) - SKIP_MARGIN
@@ -696,15 +711,22 @@ def march_direct_tangents(
         if n_par and not fitted:
             for j in range(n):  # a loop, not v_old[:] = v: slice assignment compiles slowly
                 v_old[j] = cur[j]
+        # the boundary at the two levels before and the step's ratio to the last, as scalars
+        b1 = bnd[k - 1] if k >= 1 else math.nan
+        b2 = bnd[k - 2] if k >= 2 else math.nan
+        ratio = dt[k] / dt[k - 1] if k >= 1 else 1.0
+        same_frame = k >= 1 and shift[k] == shift[k - 1] and scale[k] == scale[k - 1]
         lim0, lim1 = 1, n - 2
-        if american and k >= 1 and shift[k] == shift[k - 1] and scale[k] == scale[k - 1]:
-            lim0, lim1 = held_rows(k, dt, bnd, x0, h, n, is_put)
+        if american and not same_frame:
+            _refresh_exercise(k, ex, payoff, shift, scale, is_put)
+        if american and same_frame:
+            lim0, lim1 = held_rows(b1, b2, ratio, x0, h, n, is_put)
         nv = prev if fitted else cur  # where this step's values go
         jgo, ugo, kgo = -1, 0.0, 0.0  # the ghost of the level before
         while True:  # once, or twice if the skipped rows turn out not to be exercised
             a, b, c, vl, vh = _begin_step(
-                k, cur, ex, payoff, rhs, dt, theta, lo, di, up, df_r, df_q, shift, scale,
-                is_put, american, lim0, lim1,
+                k, cur, ex, rhs, dt, theta, lo, di, up, df_r, df_q, shift, scale, is_put,
+                american, lim0, lim1,
             )
             j0, j1, cb, cb_hi = 1, 0, 0.0, 0.0
             if fitted:
@@ -715,7 +737,7 @@ def march_direct_tangents(
                     if jg >= 0:
                         side = lo[k] if is_put else up[k]
                         rhs[jg] += (1.0 - theta[k]) * dt[k] * side * ghost_explicit(ug, kg, h)
-                    j0, j1, cb, cb_hi = damping_band(k, dt, theta, bnd, x0, h, n)
+                    j0, j1, cb, cb_hi = damping_band(theta[k], b1, b2, ratio, x0, h, n)
                     _damp_band(rhs, ga, gb, gc, cur, prev, j0, j1, cb, cb_hi, k, dt, lo, di,
                                up, keep_cn, keep_older)
             if is_put:
@@ -860,7 +882,9 @@ def _tangent_step(
     if fitted:
         tp = t_prev[p]
         if j0 <= j1:
-            dc_lo, dc_hi = damping_band_tangent(k, dt, bnd, h, d1, d2)
+            dc_lo, dc_hi = damping_band_tangent(
+                bnd[k - 1], bnd[k - 2] if k >= 2 else math.nan, dt[k] / dt[k - 1], h, d1, d2
+            )
         for j in range(j0, j1 + 1):
             phi, d, aij, wr = band_row(j, cb, cb_hi, k, dt)
             lv = dl * v[j - 1] + dd * v[j] + du * v[j + 1]
@@ -1211,6 +1235,8 @@ def _substitute_fitted(v, rhs, aw, payoff, start, stop, step, ex, ka, kb, h):
         v[j] = y
         j += step
     _held_then_projected(v, rhs, aw, payoff, j, stop, step, y)
+    if ex[0] != ex[0]:  # never: a last use of every array at the one exit (see _begin_step)
+        jg = -2
     return jg, ug, kg
 
 
@@ -1264,9 +1290,11 @@ def march_psor(
     ka = kb = 0.0
     failed = -1
     for k in range(dt.shape[0]):
+        if american:
+            _refresh_exercise(k, ex, payoff, shift, scale, is_put)
         a, b, c, vl, vh = _begin_step(
-            k, v, ex, payoff, rhs, dt, theta, lo, di, up, df_r, df_q, shift, scale, is_put,
-            american, 1, n - 2,
+            k, v, ex, rhs, dt, theta, lo, di, up, df_r, df_q, shift, scale, is_put, american,
+            1, n - 2,
         )
         j0, j1 = 1, 0
         if fitted:
@@ -1276,7 +1304,11 @@ def march_psor(
                 if jg >= 0:
                     side = lo[k] if is_put else up[k]
                     rhs[jg] += (1.0 - theta[k]) * dt[k] * side * ghost_explicit(ug, kg, h)
-                j0, j1, c_lo, c_hi = damping_band(k, dt, theta, bnd, x0, h, n)
+                j0, j1, c_lo, c_hi = damping_band(
+                    theta[k], bnd[k - 1] if k >= 1 else math.nan,
+                    bnd[k - 2] if k >= 2 else math.nan, dt[k] / dt[k - 1] if k >= 1 else 1.0,
+                    x0, h, n,
+                )
                 _damp_band(rhs, ga, gb, gc, v, older, j0, j1, c_lo, c_hi, k, dt, lo, di, up,
                            none, none)
             for j in range(n):
