@@ -298,7 +298,7 @@ def damping_band_tangent(b1, b2, ratio, h, d1, d2):
 
 
 @njit(cache=True)
-def band_row(j, c_lo, c_hi, k, dt):
+def band_row(j, c_lo, c_hi, dt_k, dt_prev):
     """Blend of row ``j`` in the damping band: ``(phi, d, ai, w)``.
 
     The row is ``phi`` times the variable-step BDF2 equation plus ``1 - phi`` times the
@@ -314,10 +314,10 @@ def band_row(j, c_lo, c_hi, k, dt):
     """
     dist = c_lo - j if j < c_lo else (j - c_hi if j > c_hi else 0.0)
     phi = 1.0 - dist / BAND_HALF_WIDTH
-    w = dt[k] / dt[k - 1]
+    w = dt_k / dt_prev
     a0 = (1.0 + 2.0 * w) / (1.0 + w)
     d = phi * a0 + 1.0 - phi
-    return phi, d, dt[k] * (0.5 + 0.5 * phi) / d, w
+    return phi, d, dt_k * (0.5 + 0.5 * phi) / d, w
 
 
 @njit(cache=True)
@@ -445,7 +445,7 @@ def _damp_band(rhs, ga, gb, gc, cur, prev, j0, j1, c_lo, c_hi, k, dt, lo, di, up
         if keep:
             keep_cn[j] = rhs[j]
             keep_older[j] = prev[j]
-        phi, d, ai, w = band_row(j, c_lo, c_hi, k, dt)
+        phi, d, ai, w = band_row(j, c_lo, c_hi, dt[k], dt[k - 1])
         ga[j] = -ai * lo[k]
         gb[j] = 1.0 - ai * di[k]
         gc[j] = -ai * up[k]
@@ -886,7 +886,7 @@ def _tangent_step(
                 bnd[k - 1], bnd[k - 2] if k >= 2 else math.nan, dt[k] / dt[k - 1], h, d1, d2
             )
         for j in range(j0, j1 + 1):
-            phi, d, aij, wr = band_row(j, cb, cb_hi, k, dt)
+            phi, d, aij, wr = band_row(j, cb, cb_hi, dt[k], dt[k - 1])
             lv = dl * v[j - 1] + dd * v[j] + du * v[j + 1]
             cn = trhs[j] - ai * lv  # the Crank-Nicolson row's explicit part
             trhs[j] = (phi * ((1.0 + wr) * t[j] - wr * wr / (1.0 + wr) * tp[j])
@@ -917,7 +917,7 @@ def _tangent_step(
         dka, dkb = pasting_curvature_tangent(lo[k], di[k], up[k], dl, dd, du, h, is_put)
         ds = h * (dka + dkb * ex[jg]) / (2.0 * sq)
         if j0 <= jg <= j1:
-            aig = band_row(jg, cb, cb_hi, k, dt)[2]
+            aig = band_row(jg, cb, cb_hi, dt[k], dt[k - 1])[2]
         else:
             aig = ai
         side_coef = lo[k] if is_put else up[k]
