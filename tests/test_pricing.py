@@ -110,10 +110,13 @@ def test_perpetual_put_approached_at_long_expiry(q: float, vol: float, star: flo
     assert prices[-1].boundary.spot[-1] == pytest.approx(star, rel=5e-3)
 
 
-@pytest.mark.parametrize("r,q", [(0.05, 0.0), (0.03, 0.06), (0.02, 0.08)])
-def test_put_boundary_at_expiry_limit(r: float, q: float) -> None:
+@pytest.mark.parametrize("r,q,t", [(0.05, 0.0, 0.5), (0.03, 0.06, 0.5), (0.02, 0.08, 1.0)])
+def test_put_boundary_at_expiry_limit(r: float, q: float, t: float) -> None:
     # Source: Kim (1990), the put's critical spot tends to K min(1, r/q) as time to expiry -> 0.
-    res = price(Option("put", 100.0, 0.5), Market(100.0, r, 0.3, q), accuracy="fine")
+    # The grid ends "fine"'s width_sd (5) standard deviations below the strike, and where the
+    # exercise region lies beyond it the boundary is NaN: the limit K/4 (ln 1/4 = -1.39) is
+    # 6.5 sd below the strike at T = 0.5, vol 0.3, so that case takes T = 1 (4.6 sd).
+    res = price(Option("put", 100.0, t), Market(100.0, r, 0.3, q), accuracy="fine")
     limit = 100.0 * min(1.0, r / q) if q > 0 else 100.0
     tau, sstar = res.boundary.time_to_expiry, res.boundary.spot
     near = tau < 2e-4
