@@ -223,3 +223,23 @@ def test_grid_greeks_skip_the_bumped_solves() -> None:
     assert math.isfinite(full.vega) and full.vega > 0 and full.rho < 0
     with pytest.raises(InputError, match="greeks"):
         price(opt, mkt, greeks="some")
+
+
+def test_expert_grid_width_does_not_follow_the_presets(monkeypatch: pytest.MonkeyPatch) -> None:
+    # Design rule (pricing.CUSTOM_WIDTH_SD): a GridSpec grid spans its own fixed width, so the
+    # benchmarks' reference grids do not move when a preset is tuned.
+    import dataclasses
+
+    from stopline import pricing
+
+    opt, mkt = Option("put", 100.0, 1.0), Market(100.0, 0.05, 0.3)
+    before = price(opt, mkt, grid=GridSpec(401, 100), greeks="grid")
+    wide = dataclasses.replace(pricing.PRESETS["standard"], width_sd=9.0)
+    monkeypatch.setitem(pricing.PRESETS, "standard", wide)
+    after = price(opt, mkt, grid=GridSpec(401, 100), greeks="grid")
+    assert after.stats.domain == before.stats.domain
+    assert after.price == before.price
+    # the domain reaches CUSTOM_WIDTH_SD standard deviations beyond the strike on either side
+    sd = 0.3
+    assert math.log(before.stats.domain[0] / 100.0) <= -pricing.CUSTOM_WIDTH_SD * sd + 1e-12
+    assert math.log(before.stats.domain[1] / 100.0) >= pricing.CUSTOM_WIDTH_SD * sd - 1e-12
