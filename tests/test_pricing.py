@@ -110,10 +110,13 @@ def test_perpetual_put_approached_at_long_expiry(q: float, vol: float, star: flo
     assert prices[-1].boundary.spot[-1] == pytest.approx(star, rel=5e-3)
 
 
-@pytest.mark.parametrize("r,q", [(0.05, 0.0), (0.03, 0.06), (0.02, 0.08)])
-def test_put_boundary_at_expiry_limit(r: float, q: float) -> None:
+@pytest.mark.parametrize("r,q,t", [(0.05, 0.0, 0.5), (0.03, 0.06, 0.5), (0.02, 0.08, 1.0)])
+def test_put_boundary_at_expiry_limit(r: float, q: float, t: float) -> None:
     # Source: Kim (1990), the put's critical spot tends to K min(1, r/q) as time to expiry -> 0.
-    res = price(Option("put", 100.0, 0.5), Market(100.0, r, 0.3, q), accuracy="fine")
+    # The grid ends "fine"'s width_sd (5) standard deviations below the strike, and where the
+    # exercise region lies beyond it the boundary is NaN: the limit K/4 (ln 1/4 = -1.39) is
+    # 6.5 sd below the strike at T = 0.5, vol 0.3, so that case takes T = 1 (4.6 sd).
+    res = price(Option("put", 100.0, t), Market(100.0, r, 0.3, q), accuracy="fine")
     limit = 100.0 * min(1.0, r / q) if q > 0 else 100.0
     tau, sstar = res.boundary.time_to_expiry, res.boundary.spot
     near = tau < 2e-4
@@ -220,3 +223,23 @@ def test_grid_greeks_skip_the_bumped_solves() -> None:
     assert math.isfinite(full.vega) and full.vega > 0 and full.rho < 0
     with pytest.raises(InputError, match="greeks"):
         price(opt, mkt, greeks="some")
+
+
+def test_expert_grid_width_does_not_follow_the_presets(monkeypatch: pytest.MonkeyPatch) -> None:
+    # Design rule (pricing.CUSTOM_WIDTH_SD): a GridSpec grid spans its own fixed width, so the
+    # benchmarks' reference grids do not move when a preset is tuned.
+    import dataclasses
+
+    from stopline import pricing
+
+    opt, mkt = Option("put", 100.0, 1.0), Market(100.0, 0.05, 0.3)
+    before = price(opt, mkt, grid=GridSpec(401, 100), greeks="grid")
+    wide = dataclasses.replace(pricing.PRESETS["standard"], width_sd=9.0)
+    monkeypatch.setitem(pricing.PRESETS, "standard", wide)
+    after = price(opt, mkt, grid=GridSpec(401, 100), greeks="grid")
+    assert after.stats.domain == before.stats.domain
+    assert after.price == before.price
+    # the domain reaches CUSTOM_WIDTH_SD standard deviations beyond the strike on either side
+    sd = 0.3
+    assert math.log(before.stats.domain[0] / 100.0) <= -pricing.CUSTOM_WIDTH_SD * sd + 1e-12
+    assert math.log(before.stats.domain[1] / 100.0) >= pricing.CUSTOM_WIDTH_SD * sd - 1e-12
