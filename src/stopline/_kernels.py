@@ -41,10 +41,43 @@ import math
 
 import numba
 import numpy as np
+from numba import types
+from numba.extending import intrinsic
 
 #: Every kernel: division by zero gives inf or NaN as in NumPy instead of raising (no
 #: exception paths, which keep reference counts on arrays the compiler could drop).
 njit = functools.partial(numba.njit, error_model="numpy")
+
+
+@intrinsic
+def _address_as_pointer(typingctx, addr):  # noqa: ANN001, ANN202
+    """An integer address as a pointer to float64 (for :func:`_borrow`)."""
+    sig = types.CPointer(types.float64)(types.uintp)
+
+    def codegen(context, builder, signature, args):  # noqa: ANN001, ANN202
+        return builder.inttoptr(args[0], context.get_value_type(types.CPointer(types.float64)))
+
+    return sig, codegen
+
+
+@njit(cache=True)
+def _borrow(a):
+    """``a`` without reference counting: an array over the same memory that kernels pass
+    to each other without the atomic increments and decrements of an owned array's count
+    (which the compiler cannot always drop, and which on small grids cost as much as a
+    step). Valid while ``a`` lives (arguments: the caller's call); ``a`` must be
+    C-contiguous."""
+    if not a.flags.c_contiguous:
+        raise ValueError("_borrow needs a C-contiguous array")
+    return numba.carray(_address_as_pointer(a.ctypes.data), a.shape)
+
+
+@njit(cache=True)
+def _carve(block, start, shape):
+    """The part of the float64 array ``block`` from element ``start`` with ``shape``, borrowed
+    (see :func:`_borrow`): work arrays carved from one allocation, which the caller keeps
+    alive until the last use of any part."""
+    return numba.carray(_address_as_pointer(block.ctypes.data + 8 * start), shape)
 
 __all__ = [
     "obstacle",
@@ -678,29 +711,54 @@ def march_direct_tangents(
     sweeps, the floor of a tridiagonal direct solve.
     """
     n = v.shape[0]
-    rhs = np.empty(n)  # right-hand side, then (after elimination) right-hand side x pivot
-    w = np.empty(n)  # reciprocal pivots
-    aw = np.empty(n)  # off-diagonal x pivot, the substitution's coefficient
-    payoff = np.empty(n)
     n_par = tan.shape[0]
+    # every array the steps pass around is borrowed (:func:`_borrow`): the arguments, and the
+    # work arrays carved from one block that lives to the end of the march
+    ex, dt, theta, lo, di, up = _borrow(ex), _borrow(dt), _borrow(theta), _borrow(lo), \
+        _borrow(di), _borrow(up)
+    df_r, df_q, shift, scale, bnd = _borrow(df_r), _borrow(df_q), _borrow(shift), \
+        _borrow(scale), _borrow(bnd)
+    tan, dco, dfar = _borrow(tan), _borrow(dco), _borrow(dfar)
+    n_fit = n if fitted else 0
+    n_tan = n if n_par else 0
+    n_tf = n if n_par and fitted else 0
+    n_old = n if n_par and not fitted else 0
+    block = np.empty(4 * n + 4 * n_fit + n_old + (n_par + 2) * n_tf + n_tan)
+    at = 0
+    rhs = _carve(block, at, n)  # right-hand side, then (after elimination) rhs x pivot
+    at += n
+    w = _carve(block, at, n)  # reciprocal pivots
+    at += n
+    aw = _carve(block, at, n)  # off-diagonal x pivot, the substitution's coefficient
+    at += n
+    payoff = _carve(block, at, n)
+    at += n
     # fitted: the step writes its values into the buffer of the level before last (free
     # once the right-hand side is formed) and the two buffers swap roles, so that the BDF2
     # history of the damped rows costs no copy; ``cur`` holds the last level, ``prev`` the one
     # before
-    cur = v
-    prev = np.empty(n if fitted else 0)
+    cur = _borrow(v)
+    prev = _carve(block, at, n_fit)
+    at += n_fit
     in_v = True  # whether cur is the caller's array
-    v_old = np.empty(n if n_par and not fitted else 0)
-    t_prev = np.empty((n_par if fitted else 0, n))
-    trhs = np.empty(n if n_par else 0)
+    v_old = _carve(block, at, n_old)
+    at += n_old
+    t_prev = _carve(block, at, (n_par if fitted else 0, n))
+    at += n_par * n_tf
+    trhs = _carve(block, at, n_tan)
+    at += n_tan
     # the damped rows' own coefficients (only rows j0..j1 are read)
-    ga = np.empty(n if fitted else 0)
-    gb = np.empty(n if fitted else 0)
-    gc = np.empty(n if fitted else 0)
+    ga = _carve(block, at, n_fit)
+    at += n_fit
+    gb = _carve(block, at, n_fit)
+    at += n_fit
+    gc = _carve(block, at, n_fit)
+    at += n_fit
     # tangents of a fitted march: the damped rows' Crank-Nicolson right-hand sides and older
     # values, and the boundary's derivatives at the last two levels
-    keep_cn = np.empty(n if n_par and fitted else 0)
-    keep_older = np.empty(n if n_par and fitted else 0)
+    keep_cn = _carve(block, at, n_tf)
+    at += n_tf
+    keep_older = _carve(block, at, n_tf)
     d1 = np.zeros(n_par)
     d2 = np.zeros(n_par)
     jg, ug, kg = -1, 0.0, 0.0
@@ -818,6 +876,8 @@ def march_direct_tangents(
     if not in_v:
         for j in range(n):
             v[j] = cur[j]
+    if block.shape[0] < 0:  # never: the block's last use, after every use of its parts
+        v[0] = math.nan
 
 
 @njit(cache=True, fastmath={"contract"})
