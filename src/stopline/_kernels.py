@@ -2019,7 +2019,7 @@ def _solve_flat(is_put, american, expiry, rate, div_yield, vol, x_min, h, n, str
 def price_pair(
     is_put, american, expiry, rate, div_yield, vol, x_spot, strike, x_min, h, n, strike_index,
     coef_c, coef_f, unit_tau_c, unit_dt_c, unit_theta_c, unit_tau_f, unit_dt_f, unit_theta_f, n_par,
-    out, bnd_x, raw, spot, fitted,
+    out, bnd_x, raw, spot, fitted, tau_out,
 ):
     """Both grids of a Richardson pair in frame "x" with flat data and the direct sweep.
 
@@ -2053,6 +2053,8 @@ def price_pair(
         March an American option with the fitted boundary (the default direct sweep,
         :func:`march_direct_tangents`) instead of plain projected Crank-Nicolson
         (``DirectSweep(fitted=False)``).
+    tau_out : ndarray, shape (fine steps,)
+        Written: the fine grid's time to expiry after each step.
 
     References
     ----------
@@ -2089,6 +2091,8 @@ def price_pair(
             else:
                 out[8 + 2 * g + i - 1] = val
     boundary_spots(bnd_x, strike, True, is_put, raw, spot)
+    for i in range(tau_out.shape[0]):
+        tau_out[i] = expiry * unit_tau_f[i]
 
 
 # ---------------------------------------------------------------------------------------------

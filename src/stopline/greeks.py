@@ -47,8 +47,7 @@ from __future__ import annotations
 
 import copy
 import math
-from dataclasses import dataclass
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, NamedTuple
 
 import numpy as np
 
@@ -84,9 +83,11 @@ VOL_BUMP = 1e-2
 RATE_BUMP = 1e-3
 
 
-@dataclass(frozen=True)
-class GridReadout:
+class GridReadout(NamedTuple):
     """Value and Greeks at the spot read off one grid (in money units, not per strike).
+
+    A named tuple (immutable like the result types, and built two or more times per price:
+    cheaper than a dataclass).
 
     Attributes
     ----------

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import datetime as _dt
+import functools
 import math
 from collections.abc import Iterable
 from dataclasses import dataclass
@@ -91,10 +92,12 @@ class Market:
             divs = parse_dividends(divs)
         object.__setattr__(self, "dividends", _check_dividends(divs, self.valuation_date))
 
-    @property
+    @functools.cached_property
     def has_term_structure(self) -> bool:
-        """True if the rate, the yield or the vol is a curve rather than a number."""
-        return not all(isinstance(c, float) for c in (self.rate, self.div_yield, self.vol))
+        """True if the rate, the yield or the vol is a curve rather than a number (computed
+        once: every price asks)."""
+        return not (isinstance(self.rate, float) and isinstance(self.div_yield, float)
+                    and isinstance(self.vol, float))
 
 
 def _check_dividends(divs: object, valuation_date: _dt.date | None) -> tuple[Dividend, ...]:

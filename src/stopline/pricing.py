@@ -1000,7 +1000,7 @@ def _health_warnings(
             f"{err / strike:.1e}), over {HEALTH_FACTOR:g} times the {promised:g} promised: the "
             "price may be off by more; try accuracy='fine'"
         )
-    if not all(math.isfinite(x) for x in (*numbers, err)):
+    if not all(map(math.isfinite, (*numbers, err))):
         out.append("a non-finite number came out of the grid: do not use this result")
     return out
 
@@ -1008,6 +1008,14 @@ def _health_warnings(
 def _domain(strike: float, x_min: float, h: float, n: int) -> tuple[float, float]:
     """Lowest and highest spot of a grid."""
     return strike * math.exp(x_min), strike * math.exp(x_min + (n - 1) * h)
+
+
+@functools.lru_cache(maxsize=64)
+def _pair_time_grids(
+    levels: int,
+) -> tuple[tuple[FloatArray, FloatArray, FloatArray], tuple[FloatArray, FloatArray, FloatArray]]:
+    """The unit time grids of a pair whose coarse grid has ``levels`` (shared, read-only)."""
+    return unit_time_grid(levels), unit_time_grid(2 * levels)
 
 
 def _price_pair(
@@ -1035,21 +1043,24 @@ def _price_pair(
     preset = PRESETS[name]
     k = option.strike
     x_spot = math.log(market.spot / k)
-    x_min, h, n, k_idx, frame_y = _preset_layout(x_spot, t, rate, q, vol, american, preset)
+    # the compiled layout directly: every argument is already a float or a bool here
+    x_min, h, n, k_idx, frame_y = _kernels.preset_layout(
+        x_spot, t, rate, q, vol, american, preset.width_sd, preset.points_per_sd,
+        preset.max_spacing, MAX_COARSE_NODES, False,
+    )
     if frame_y:
         return None
     levels = _coarse_levels(preset, vol * math.sqrt(t), american)
-    unit_c = unit_time_grid(levels)
-    unit_f = unit_time_grid(2 * levels)
+    unit_c, unit_f = _pair_time_grids(levels)
     tangents = greeks != "grid" and american
     out = np.empty(_kernels.PAIR_OUT)
     m_f = unit_f[0].shape[0]
-    bnd = np.empty((3, m_f))
+    b_tau, b_x, b_raw, b_spot = np.empty(m_f), np.empty(m_f), np.empty(m_f), np.empty(m_f)
     _kernels.price_pair(
         is_put, american, t, rate, q, vol, x_spot, k, x_min, h, n, k_idx,
         coefficients(h, rate, q, vol), coefficients(0.5 * h, rate, q, vol), *unit_c, *unit_f,
-        (2 if greeks == "full" else 1) if tangents else 0, out, bnd[0], bnd[1], bnd[2],
-        solver.fitted,
+        (2 if greeks == "full" else 1) if tangents else 0, out, b_x, b_raw, b_spot,
+        solver.fitted, b_tau,
     )
     o = out.tolist()
     rc = GridReadout(o[0], o[1], o[2], o[3] != 0.0)
@@ -1075,8 +1086,7 @@ def _price_pair(
     stats = SolveStats(2 * n - 1, 2 * levels, m_f, n, levels, solver.name, 0, 0,
                        _domain(k, x_min, 0.5 * h, 2 * n - 1), warnings=tuple(warnings))
     return Result(value, delta, gamma, theta, vega, rho, abs(rf.value - rc.value) / 3.0,
-                  ExerciseBoundary(t * unit_f[0], bnd[2], bnd[1]), stats, option, market, t,
-                  name)
+                  ExerciseBoundary(b_tau, b_spot, b_raw), stats, option, market, t, name)
 
 
 @functools.lru_cache(maxsize=512)
