@@ -11,7 +11,8 @@ machine), the speed-up over one worker, and rows per CPU-second (this process an
 workers), which other load on the machine changes little. The price() calls per row are
 counted in a separate pass.
 
-    python benchmarks/bench_crosscheck.py --rows 480 --workers 1 2
+    python benchmarks/bench_crosscheck.py --rows 2400 --workers 1 2   # steady state
+    python benchmarks/bench_crosscheck.py --rows 480 --workers 1 2    # pool start-up weighs
     python benchmarks/bench_crosscheck.py --cold     # also a run in a fresh interpreter
 """
 
