@@ -996,18 +996,10 @@ def _tangent_step(
         while j >= lim0:
             if j - 3 >= lim0 and (j - 3 > j1 or j < j0):
                 # four rows outside the band at a time (see _held_then_projected)
-                f0 = e * w[j + 1]
-                f1 = e * w[j]
-                f2 = e * w[j - 1]
-                f3 = e * w[j - 2]
-                p0 = trhs[j]
-                p1 = trhs[j - 1] - f1 * p0
-                p2 = trhs[j - 2] - f2 * p1
-                p3 = trhs[j - 3] - f3 * p2
-                q0 = -f0
-                q1 = -f1 * q0
-                q2 = -f2 * q1
-                q3 = -f3 * q2
+                p0, p1, p2, p3, q0, q1, q2, q3 = _block4(
+                    trhs[j], trhs[j - 1], trhs[j - 2], trhs[j - 3], e * w[j + 1], e * w[j],
+                    e * w[j - 1], e * w[j - 2],
+                )
                 trhs[j] = (p0 + q0 * r) * w[j]
                 trhs[j - 1] = (p1 + q1 * r) * w[j - 1]
                 trhs[j - 2] = (p2 + q2 * r) * w[j - 2]
@@ -1030,14 +1022,10 @@ def _tangent_step(
                     v[j] > payoff[j] and v[j + 1] > payoff[j + 1] and v[j + 2] > payoff[j + 2]
                     and v[j + 3] > payoff[j + 3]))):
                 # four held rows at a time (see _held_then_projected)
-                p0 = trhs[j]
-                q0 = -aw[j]
-                p1 = trhs[j + 1] - aw[j + 1] * p0
-                q1 = -aw[j + 1] * q0
-                p2 = trhs[j + 2] - aw[j + 2] * p1
-                q2 = -aw[j + 2] * q1
-                p3 = trhs[j + 3] - aw[j + 3] * p2
-                q3 = -aw[j + 3] * q2
+                p0, p1, p2, p3, q0, q1, q2, q3 = _block4(
+                    trhs[j], trhs[j + 1], trhs[j + 2], trhs[j + 3], aw[j], aw[j + 1], aw[j + 2],
+                    aw[j + 3],
+                )
                 t[j] = p0 + q0 * y
                 t[j + 1] = p1 + q1 * y
                 t[j + 2] = p2 + q2 * y
@@ -1062,18 +1050,10 @@ def _tangent_step(
         while j <= lim1:
             if j + 3 <= lim1 and (j + 3 < j0 or j > j1):
                 # four rows outside the band at a time (see _held_then_projected)
-                f0 = e * w[j - 1]
-                f1 = e * w[j]
-                f2 = e * w[j + 1]
-                f3 = e * w[j + 2]
-                p0 = trhs[j]
-                p1 = trhs[j + 1] - f1 * p0
-                p2 = trhs[j + 2] - f2 * p1
-                p3 = trhs[j + 3] - f3 * p2
-                q0 = -f0
-                q1 = -f1 * q0
-                q2 = -f2 * q1
-                q3 = -f3 * q2
+                p0, p1, p2, p3, q0, q1, q2, q3 = _block4(
+                    trhs[j], trhs[j + 1], trhs[j + 2], trhs[j + 3], e * w[j - 1], e * w[j],
+                    e * w[j + 1], e * w[j + 2],
+                )
                 trhs[j] = (p0 + q0 * r) * w[j]
                 trhs[j + 1] = (p1 + q1 * r) * w[j + 1]
                 trhs[j + 2] = (p2 + q2 * r) * w[j + 2]
@@ -1096,14 +1076,10 @@ def _tangent_step(
                     v[j] > payoff[j] and v[j - 1] > payoff[j - 1] and v[j - 2] > payoff[j - 2]
                     and v[j - 3] > payoff[j - 3]))):
                 # four held rows at a time (see _held_then_projected)
-                p0 = trhs[j]
-                q0 = -aw[j]
-                p1 = trhs[j - 1] - aw[j - 1] * p0
-                q1 = -aw[j - 1] * q0
-                p2 = trhs[j - 2] - aw[j - 2] * p1
-                q2 = -aw[j - 2] * q1
-                p3 = trhs[j - 3] - aw[j - 3] * p2
-                q3 = -aw[j - 3] * q2
+                p0, p1, p2, p3, q0, q1, q2, q3 = _block4(
+                    trhs[j], trhs[j - 1], trhs[j - 2], trhs[j - 3], aw[j], aw[j - 1], aw[j - 2],
+                    aw[j - 3],
+                )
                 t[j] = p0 + q0 * y
                 t[j - 1] = p1 + q1 * y
                 t[j - 2] = p2 + q2 * y
@@ -1123,6 +1099,21 @@ def _tangent_step(
 
 
 @njit(cache=True, fastmath={"contract"})
+def _block4(r0, r1, r2, r3, a0, a1, a2, a3):
+    """Four rows of ``y_m = r_m - a_m y_{m-1}`` as ``y_m = p_m + q_m y`` from the value ``y``
+    before them: ``(p0, p1, p2, p3, q0, q1, q2, q3)``, which do not depend on ``y``, so that
+    a sweep's serial latency is one fused multiply-add per four rows."""
+    q0 = -a0
+    p1 = r1 - a1 * r0
+    q1 = -a1 * q0
+    p2 = r2 - a2 * p1
+    q2 = -a2 * q1
+    p3 = r3 - a3 * p2
+    q3 = -a3 * q2
+    return r0, p1, p2, p3, q0, q1, q2, q3
+
+
+@njit(cache=True, fastmath={"contract"})
 def _held_then_projected(v, rhs, aw, payoff, j, stop, step, y):
     """From node ``j`` (``y`` the value before it): the continuation region, where the
     ``max`` is not needed, then the plain projected loop from the first node where it would
@@ -1136,14 +1127,9 @@ def _held_then_projected(v, rhs, aw, payoff, j, stop, step, y):
     # written apart, each with a constant step)
     if step > 0:
         while j + 3 < stop:
-            p0 = rhs[j]
-            q0 = -aw[j]
-            p1 = rhs[j + 1] - aw[j + 1] * p0
-            q1 = -aw[j + 1] * q0
-            p2 = rhs[j + 2] - aw[j + 2] * p1
-            q2 = -aw[j + 2] * q1
-            p3 = rhs[j + 3] - aw[j + 3] * p2
-            q3 = -aw[j + 3] * q2
+            p0, p1, p2, p3, q0, q1, q2, q3 = _block4(
+                rhs[j], rhs[j + 1], rhs[j + 2], rhs[j + 3], aw[j], aw[j + 1], aw[j + 2], aw[j + 3]
+            )
             y0 = p0 + q0 * y
             y1 = p1 + q1 * y
             y2 = p2 + q2 * y
@@ -1159,14 +1145,9 @@ def _held_then_projected(v, rhs, aw, payoff, j, stop, step, y):
             j += 4
     else:
         while j - 3 > stop:
-            p0 = rhs[j]
-            q0 = -aw[j]
-            p1 = rhs[j - 1] - aw[j - 1] * p0
-            q1 = -aw[j - 1] * q0
-            p2 = rhs[j - 2] - aw[j - 2] * p1
-            q2 = -aw[j - 2] * q1
-            p3 = rhs[j - 3] - aw[j - 3] * p2
-            q3 = -aw[j - 3] * q2
+            p0, p1, p2, p3, q0, q1, q2, q3 = _block4(
+                rhs[j], rhs[j - 1], rhs[j - 2], rhs[j - 3], aw[j], aw[j - 1], aw[j - 2], aw[j - 3]
+            )
             y0 = p0 + q0 * y
             y1 = p1 + q1 * y
             y2 = p2 + q2 * y
