@@ -158,7 +158,7 @@ def _geske_johnson_cases():
             yield pytest.param(strike, vol, t, published, marks=marks)
 
 
-@pytest.mark.parametrize("strike, vol, t, published", _geske_johnson_cases())
+@pytest.mark.parametrize("strike, vol, t, published", list(_geske_johnson_cases()))
 def test_geske_johnson_table(strike: int, vol: float, t: float, published: float) -> None:
     value = lr_extrapolated_price("put", "american", 40.0, strike, t, 0.0488, 0.0, vol, 801)
     assert value == pytest.approx(published, abs=1e-4)
@@ -210,7 +210,7 @@ def _broadie_detemple_cases():
             yield pytest.param(vol, s, p, marks=marks)
 
 
-@pytest.mark.parametrize("vol, spot, published", _broadie_detemple_cases())
+@pytest.mark.parametrize("vol, spot, published", list(_broadie_detemple_cases()))
 def test_broadie_detemple_calls(vol: float, spot: float, published: float) -> None:
     value = lr_extrapolated_price("call", "american", spot, 100.0, 0.5, 0.03, 0.07, vol, 1001)
     assert value == pytest.approx(published, abs=2e-4)
