@@ -165,8 +165,10 @@ def test_escrowed_call_exercised_at_once_reads_intrinsic(q: float) -> None:
         assert res.price == pytest.approx(s - k, abs=1e-12)
         assert res.delta == 1.0 and res.gamma == 0.0
     prof = value_profile(Option("call", k, t), mkt, accuracy="fast")
-    near = (prof.spot > 130.0) & (prof.spot < 400.0)
-    assert prof.exercised[near].all()
+    # the critical spot lies near 134: a 4000-step tree of the same model still holds at
+    # 132.3 (premium 0.004) and at 130 (0.063), so the nodes checked start above it
+    near = (prof.spot > 140.0) & (prof.spot < 400.0)
+    assert near.sum() >= 5 and prof.exercised[near].all()
     assert np.allclose(prof.value[near], prof.spot[near] - k, atol=1e-9 * k)
 
 

@@ -297,7 +297,7 @@ def _resolve_grid(
         eps = NEGLIGIBLE_REACH * PRESETS["fine"].target
     else:
         name = check_choice("accuracy", accuracy, tuple(PRESETS))
-        preset = PRESETS[name]
+        preset = _preset_for(PRESETS[name], problem.american, problem.escrowed)
         width, levels = preset.width_sd, _coarse_levels(preset, sd, problem.american)
         scale = _decay_length(problem.rate, mu, problem.vol, problem.is_put) \
             if problem.american else math.inf
@@ -454,6 +454,27 @@ def _decay_length(rate: float, mu: float, vol: float, is_put: bool | None = None
 #: "standard" with 100 levels, 0.8 % with 200, 0.07 % with 280).
 LONG_LIFE_SD = 1.5
 MAX_LEVEL_MULTIPLE = 4
+
+
+#: An American option under escrowed cash dividends is marched with the plain scheme (one step
+#: at a time on shifted spots, where the fitted boundary's curvature formula does not hold),
+#: whose error is set mostly by the spacing; its grid takes this many times the preset's points
+#: per standard deviation and time levels. Own measurement, 60 random American contracts with
+#: one to three dividends against ``GridSpec(8001, 4000)``: at 1x, 1.7e-6 x K at "standard"
+#: and 2.7e-8 at "fine" (2 and 5 of 60 above target); at 1.5x, 3.9e-7 and 8.2e-9 (none).
+ESCROWED_REFINE = 1.5
+
+
+def _preset_for(preset: AccuracyPreset, american: bool, escrowed: bool) -> AccuracyPreset:
+    """The grid behind ``preset`` for this problem: the preset itself, or a finer one for an
+    American option under escrowed dividends (:data:`ESCROWED_REFINE`)."""
+    if not (american and escrowed):
+        return preset
+    f = ESCROWED_REFINE
+    return dataclasses.replace(
+        preset, points_per_sd=preset.points_per_sd * f, max_spacing=preset.max_spacing / f,
+        time_levels=2 * round(preset.time_levels * f / 2),
+    )
 
 
 def _coarse_levels(preset: AccuracyPreset, sd: float = 0.0, american: bool = False) -> int:
@@ -1167,7 +1188,7 @@ def _price_pair_dividends(
     ):
         return None
     name = check_choice("accuracy", accuracy, tuple(PRESETS))
-    preset = PRESETS[name]
+    preset = _preset_for(PRESETS[name], american, escrowed)
     k = option.strike
     x_min, h, n, k_idx, frame_y = _preset_layout(problem.x_spot, t, rate, q, vol, american,
                                                  preset)
