@@ -381,7 +381,7 @@ def _eliminate(rhs, w, aw, far, b, near, gfar, gb, gnear, j0, j1, keep_w, step, 
     Rows ``j0..j1`` have their own coefficients ``(gfar, gb, gnear)``, the others
     ``(far, b, near)``. The pivots of a run of constant rows follow the closed form of
     :func:`_pivot_map`; once they are within rounding of its fixed point the sweep goes on
-    without a division, two rows at a time (which halves the serial latency of its
+    without a division, four rows at a time (which cuts the serial latency of its
     recurrence), up to the band or the end. ``keep_w`` stores every pivot (the tangent march
     needs them). Only rows ``lim0..lim1`` are eliminated (all interior rows: ``1..n - 2``;
     the sweep may stop short of the exercise region, see :func:`march_direct_tangents`).
@@ -703,12 +703,17 @@ def march_direct_tangents(
     Speed. The coefficients are constant in space, so the reciprocal pivots
     ``w_j = 1 / (b - a c w_{j+1})`` converge geometrically to a fixed point; once two in a row
     are equal in floating point every later one is too (same map, same input), and the rest of
-    the elimination needs no division; there it goes two nodes at a time, which halves the
+    the elimination needs no division; there it goes four nodes at a time, which cuts the
     serial latency of its recurrence. The right-hand side is scaled by the pivot during the
-    elimination, so the substitution is one fused multiply-add per node, and it is split by
-    region (:func:`_substitute_projected`) so that the ``max`` stays off the critical path.
-    What remains is about a fused multiply-add of latency per node for each of the two
-    sweeps, the floor of a tridiagonal direct solve.
+    elimination, so the substitution is one fused multiply-add per node, split by region
+    (:func:`_substitute_projected`) so that the ``max`` stays off the critical path, and
+    taken four held rows at a time (:func:`_block4`). An American step solves only the rows
+    from a few cells beyond where the boundary is expected (:func:`held_rows`): the others lie
+    deep in the exercise region. It checks, exactly as the substitution would decide, that
+    the first solved row is exercised (then, with one exercise interval, so are the rows
+    beyond it, and the result is the full sweep's), and solves every row otherwise. Every
+    array the steps pass around is borrowed (:func:`_borrow`, :func:`_carve`), so that no
+    call pays for atomic reference counting.
     """
     n = v.shape[0]
     n_par = tan.shape[0]
