@@ -8,6 +8,7 @@ import numpy as np
 import pytest
 from scipy.integrate import quad
 
+from stopline import _published as pub
 from stopline.errors import InputError
 from stopline.reference import (
     baw_price,
@@ -17,48 +18,31 @@ from stopline.reference import (
 )
 from stopline.reference.approximations import _phi, _psi
 
-# Barone-Adesi & Whaley (1987), example table in Haug's Complete Guide (recalled, +-3e-3):
-# American call, b = 0 (q = r = 0.10), K = 100, S = 90 / 100 / 110.
-BAW_TABLE = {
-    (0.1, 0.15): (0.0206, 1.8771, 10.0089),
-    (0.1, 0.25): (0.3159, 3.1280, 10.3919),
-    (0.1, 0.35): (0.9495, 4.3777, 11.1679),
-    (0.5, 0.15): (0.8208, 4.0842, 10.8087),
-    (0.5, 0.25): (2.7437, 6.8015, 13.0170),
-    (0.5, 0.35): (5.0063, 9.5106, 15.5689),
-}
+# Barone-Adesi & Whaley (1987) and Bjerksund & Stensland (2002), example tables in Haug, The
+# Complete Guide to Option Pricing Formulas (from memory; BAW +-3e-3, BjS printed to 4
+# decimals): American calls, b = 0 (q = r = 0.10), K = 100, S = 90 / 100 / 110. The values
+# are kept once, in stopline._published (the validation record checks them too), as rows
+# (expiry, vol, spot, value).
+BAW = {(t, v, s): val for t, v, s, val in pub.BAW_TABLE}
 
 
-@pytest.mark.parametrize("expiry, vol", list(BAW_TABLE))
-def test_baw_published_table(expiry: float, vol: float) -> None:
-    for s, published in zip((90.0, 100.0, 110.0), BAW_TABLE[(expiry, vol)], strict=True):
-        value = baw_price("call", s, 100.0, expiry, 0.10, 0.10, vol).value
-        assert value == pytest.approx(published, abs=3e-3)
+@pytest.mark.parametrize("expiry, vol, s, published", pub.BAW_TABLE)
+def test_baw_published_table(expiry: float, vol: float, s: float, published: float) -> None:
+    value = baw_price("call", s, 100.0, expiry, 0.10, 0.10, vol).value
+    assert value == pytest.approx(published, abs=3e-3)
 
 
-# Bjerksund & Stensland (2002), example table in Haug, The Complete Guide to Option Pricing
-# Formulas (from memory, written down before the formula was run): the same calls as the
-# table above, b = 0 (q = r = 0.10), K = 100, S = 90 / 100 / 110; printed to 4 decimals.
-BJS_TABLE = {
-    (0.1, 0.15): (0.0205, 1.8757, 10.0000),
-    (0.1, 0.25): (0.3151, 3.1256, 10.3725),
-    (0.1, 0.35): (0.9479, 4.3746, 11.1578),
-    (0.5, 0.15): (0.8099, 4.0628, 10.7898),
-    (0.5, 0.25): (2.7180, 6.7661, 12.9814),
-    (0.5, 0.35): (4.9665, 9.4608, 15.5137),
-}
-
-
-@pytest.mark.parametrize("expiry, vol", list(BJS_TABLE))
-def test_bjerksund_stensland_published_table(expiry: float, vol: float) -> None:
-    for s, published in zip((90.0, 100.0, 110.0), BJS_TABLE[(expiry, vol)], strict=True):
-        approx = bjerksund_stensland_price("call", s, 100.0, expiry, 0.10, 0.10, vol)
-        # printed to 4 decimals: within rounding (5e-5) plus the last digit's doubt
-        assert approx.value == pytest.approx(published, abs=1e-4)
-        # against each other: every entry of this table lies below the Barone-Adesi-Whaley
-        # table's (both from memory, above), and so do the two formulas' values
-        assert published < BAW_TABLE[(expiry, vol)][(90.0, 100.0, 110.0).index(s)]
-        assert approx.value < baw_price("call", s, 100.0, expiry, 0.10, 0.10, vol).value
+@pytest.mark.parametrize("expiry, vol, s, published", pub.BJS_TABLE)
+def test_bjerksund_stensland_published_table(
+    expiry: float, vol: float, s: float, published: float
+) -> None:
+    approx = bjerksund_stensland_price("call", s, 100.0, expiry, 0.10, 0.10, vol)
+    # printed to 4 decimals: within rounding (5e-5) plus the last digit's doubt
+    assert approx.value == pytest.approx(published, abs=1e-4)
+    # against each other: every entry of this table lies below the Barone-Adesi-Whaley
+    # table's (both from memory, above), and so do the two formulas' values
+    assert published < BAW[(expiry, vol, s)]
+    assert approx.value < baw_price("call", s, 100.0, expiry, 0.10, 0.10, vol).value
 
 
 def _grid():
